@@ -1,0 +1,207 @@
+# Board layer for the RP2040 / RP2350 reference tester (schematics/).
+# The only firmware module that touches hardware. Pins and front-end numbers
+# come from frontend.json on the board's flash (a copy of
+# schematics/frontend.json), so firmware, simulator and host agree.
+#
+# Dense phase: the ADC free-runs in round-robin over the fitted channels and
+# DMA moves results to RAM, so USB traffic cannot stall sampling; the CPU
+# watches DMA progress and switches off on over-current within a few sets.
+# Slower phases: conversions paced by ticks_us and summed (oversampling).
+import array
+import json
+import select
+import sys
+import time
+
+import machine
+import micropython
+import rp2
+from micropython import const
+
+from glowfw import frontend
+
+_RP2350 = "RP2350" in sys.implementation._machine
+_ADC_BASE = const(0x400A0000) if _RP2350 else const(0x4004C000)
+_ADC_CS = _ADC_BASE
+_ADC_FCS = _ADC_BASE + 0x08
+_ADC_FIFO = _ADC_BASE + 0x0C
+_ADC_DIV = _ADC_BASE + 0x10
+_DREQ_ADC = 48 if _RP2350 else 36
+_ADC_CLOCK_HZ = const(48000000)
+_WDT_MS = const(8000)
+_FE_PATH = "/frontend.json"
+_CAL_PATH = "/calibration.json"
+
+_RESET_NAMES = {}
+for _n in ("PWRON_RESET", "WDT_RESET", "HARD_RESET", "SOFT_RESET", "DEEPSLEEP_RESET"):
+    if hasattr(machine, _n):
+        _RESET_NAMES[getattr(machine, _n)] = _n.lower()
+
+
+def heater_pins(fe):
+    """Both switch gates driven low. Called first thing at boot."""
+    g = fe["gpio"]
+    return (machine.Pin(g["switch_a"], machine.Pin.OUT, value=0),
+            machine.Pin(g["switch_b"], machine.Pin.OUT, value=0))
+
+
+class Rp2Board:
+    def __init__(self, fitted_optional=()):
+        fe = frontend.load(_FE_PATH)
+        self.fe = fe
+        self.frontend = fe
+        self.switch = heater_pins(fe)
+        self.mask = 0
+        self.range_pin = machine.Pin(fe["gpio"]["range_high"], machine.Pin.OUT, value=0)
+        self.channels = frontend.channel_names(fe, fitted_optional)
+        self.inputs = [c["adc_input"] for c in fe["channels"] if c["name"] in self.channels]
+        self.adcs = [machine.ADC(i) for i in self.inputs]
+        self.temp_adc = machine.ADC(4)
+        self.ranges = list(fe["current_ranges"])
+        self.board_id = "rp2-" + "".join("%02x" % b for b in machine.unique_id())
+        self.reset_cause = _RESET_NAMES.get(machine.reset_cause(), "unknown")
+        self.max_on_s = fe["limits"]["max_on_s"]
+        self.calibration = {"source": "nominal", "gain": 1.0, "offset_codes": 0}
+        try:
+            with open(_CAL_PATH) as f:
+                self.calibration = json.load(f)
+        except OSError:
+            pass
+        self.stdin = sys.stdin.buffer
+        self.stdout = sys.stdout.buffer
+        self.poller = select.poll()
+        self.poller.register(sys.stdin, select.POLLIN)
+        micropython.kbd_intr(-1)  # 0x03 in binary frames must not interrupt
+        self.wdt = machine.WDT(timeout=_WDT_MS)
+
+    # clocks
+    def now_us(self):
+        return time.ticks_us()
+
+    def link_ms(self):
+        return time.ticks_ms()
+
+    # switch and ranges
+    def heater(self, mask):
+        self.switch[0].value(mask & 1)
+        self.switch[1].value((mask >> 1) & 1)
+        self.mask = mask
+        return time.ticks_us()
+
+    def heater_state(self):
+        return self.mask
+
+    def set_range(self, name):
+        self.range_pin.value(1 if name == "high" else 0)
+        time.sleep_us(200)  # analogue switch and amplifier settle
+
+    def full_scale_a(self, name):
+        return frontend.full_scale_a(self.fe, name)
+
+    def amps_to_code(self, name, amps):
+        return frontend.amps_to_code(self.fe, name, amps)
+
+    def ambient_c(self):
+        # internal sensor (RP2040 datasheet 4.9.5): coarse, a few kelvin;
+        # an external sensor on the socket plate is better (schematics/)
+        v = self.temp_adc.read_u16() * 3.3 / 65535
+        return round(27.0 - (v - 0.706) / 0.001721, 1)
+
+    # sampling
+    def sample(self, buf, n_sets, t_start, interval, oversample, trip_code, current_idx):
+        if oversample == 1 and interval < 100:
+            return self._sample_dma(buf, n_sets, t_start, interval, trip_code, current_idx)
+        return self._sample_paced(buf, n_sets, t_start, interval, oversample,
+                                  trip_code, current_idx)
+
+    def _sample_paced(self, buf, n_sets, t_start, interval, oversample, trip_code,
+                      current_idx):
+        adcs = self.adcs
+        nch = len(adcs)
+        trip_sum = trip_code * oversample
+        while time.ticks_diff(t_start, time.ticks_us()) > 0:
+            pass
+        t0 = time.ticks_us()
+        for k in range(n_sets):
+            due = time.ticks_add(t0, k * interval)
+            while time.ticks_diff(due, time.ticks_us()) > 0:
+                pass
+            base = k * nch
+            for c in range(nch):
+                a = adcs[c]
+                s = 0
+                for _ in range(oversample):
+                    s += a.read_u16() >> 4
+                buf[base + c] = s
+            if trip_code:
+                for c in current_idx:
+                    if buf[base + c] > trip_sum:
+                        self.heater(0)
+                        return k + 1, t0, True
+        self.wdt.feed()
+        return n_sets, t0, False
+
+    def _sample_dma(self, buf, n_sets, t_start, interval, trip_code, current_idx):
+        nch = len(self.inputs)
+        total = n_sets * nch
+        mask = 0
+        for i in self.inputs:
+            mask |= 1 << i
+        # conversion every interval/nch us, round robin from the lowest input
+        div = (_ADC_CLOCK_HZ * interval // (1000000 * nch)) - 1
+        machine.mem32[_ADC_CS] = 1  # enable, stopped
+        machine.mem32[_ADC_FCS] = (1 << 0) | (1 << 3) | (1 << 24)  # FIFO, DREQ, thresh 1
+        while not machine.mem32[_ADC_FCS] & (1 << 8):  # drain stale results
+            machine.mem32[_ADC_FIFO]
+        machine.mem32[_ADC_DIV] = div << 8
+        rr_shift = 16
+        ainsel_shift = 12
+        dma = rp2.DMA()
+        ctrl = dma.pack_ctrl(size=1, inc_read=False, inc_write=True, treq_sel=_DREQ_ADC)
+        dma.config(read=_ADC_FIFO, write=buf, count=total, ctrl=ctrl, trigger=True)
+        while time.ticks_diff(t_start, time.ticks_us()) > 0:
+            pass
+        t0 = time.ticks_us()
+        machine.mem32[_ADC_CS] = (1 | (1 << 3) | (self.inputs[0] << ainsel_shift)
+                                  | (mask << rr_shift))
+        tripped = False
+        checked = 0
+        try:
+            while dma.active():
+                done = total - dma.count
+                last_set = done // nch
+                while checked < last_set:
+                    base = checked * nch
+                    for c in current_idx:
+                        if buf[base + c] > trip_code:
+                            tripped = True
+                    checked += 1
+                if tripped:
+                    self.heater(0)
+                    break
+        finally:
+            machine.mem32[_ADC_CS] = 1  # stop free-running
+            remaining = dma.count
+            dma.close()
+        done = (total - remaining) // nch if tripped else n_sets
+        self.wdt.feed()
+        return done, t0, tripped
+
+    # link
+    def read_input(self):
+        data = bytearray()
+        while len(data) < 512 and self.poller.poll(0):
+            b = self.stdin.read(1)
+            if not b:
+                break
+            data.extend(b)
+        return bytes(data)
+
+    def write(self, data):
+        self.stdout.write(data)
+
+    def idle(self, ms):
+        self.poller.poll(ms)
+
+    def feed_watchdog(self):
+        self.wdt.feed()

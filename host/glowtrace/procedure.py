@@ -1,0 +1,41 @@
+"""The capture procedure: open the port, identify, capture, store, and leave
+the heater off whatever happens (Ctrl-C, a dropped link, a reset board).
+
+A capture that cannot be whole is still stored, marked incomplete with its
+reason: nothing that arrived is thrown away."""
+
+from .capture import RawCapture
+from .link import Link
+from .store import Store
+from .tester import CaptureInterrupted, Tester
+from .transport import open_port
+
+
+class UserInterrupt(KeyboardInterrupt):
+    """Ctrl-C during a capture, after the partial capture was stored."""
+
+    def __init__(self, raw: RawCapture):
+        super().__init__("interrupted")
+        self.raw = raw
+
+
+def run_capture(port_url: str, store: Store, tube: str, section: str,
+                params: dict | None = None, progress=None, tube_type: str | None = None,
+                notes: str | None = None) -> RawCapture:
+    port = open_port(port_url)
+    tester = Tester(Link(port), port_url)
+    try:
+        tester.link.drain()
+        tester.identify()
+        try:
+            raw = tester.capture(tube, section, params or {}, progress)
+        except CaptureInterrupted as e:
+            raw = e.raw
+            raw.incomplete_reason = e.reason
+        store.save_capture(raw, tube_type=tube_type, notes=notes)
+        if raw.incomplete_reason == "interrupted by the user":
+            raise UserInterrupt(raw)
+        return raw
+    finally:
+        tester.abort()  # idempotent on the firmware: heater off, whatever state
+        port.close()

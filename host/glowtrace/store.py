@@ -1,0 +1,166 @@
+"""The SQLite logbook: schema with recorded migrations, captures keyed by
+UUID, raw samples kept losslessly with the timing, front end and calibration
+they were taken with. A capture is written in one transaction: it is there
+whole or not at all."""
+
+import json
+import sqlite3
+from datetime import datetime, timezone
+from pathlib import Path
+
+import sqlite_utils
+
+from . import samples_codec
+from .capture import RawCapture
+from .errors import StoreError
+
+
+def _now() -> str:
+    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+
+def _m1_initial(db: sqlite_utils.Database) -> None:
+    db["tubes"].create({"label": str, "type": str, "notes": str, "created_at": str},
+                       pk="label")
+    db["captures"].create({
+        "uuid": str, "tube": str, "section": str, "started_at": str, "stored_at": str,
+        "complete": int, "incomplete_reason": str, "end_reason": str, "trip_cause": str,
+        "board_id": str, "firmware": str, "port": str, "ambient_c": float,
+        "n_sets": int, "n_blocks": int, "params": str, "hello": str, "phases": str,
+        "end_record": str, "trip_record": str, "link": str,
+    }, pk="uuid", foreign_keys=[("tube", "tubes", "label")])
+    db["captures"].create_index(["tube", "section", "started_at"])
+    db["capture_samples"].create({
+        "capture_uuid": str, "encoding": str, "channels": str, "n_sets": int,
+        "blocks": bytes, "samples": bytes,
+    }, pk="capture_uuid", foreign_keys=[("capture_uuid", "captures", "uuid")])
+
+
+# (version, name, function). Append only: never edit a released migration.
+MIGRATIONS = [
+    (1, "initial: tubes, captures, capture_samples", _m1_initial),
+]
+LATEST = MIGRATIONS[-1][0]
+
+
+class Store:
+    def __init__(self, path: str | Path, create: bool = True):
+        self.path = Path(path)
+        if not create and not self.path.exists():
+            raise StoreError(f"no database at {self.path}")
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            conn = sqlite3.connect(self.path, timeout=5.0)
+            conn.execute("PRAGMA foreign_keys = ON")
+            self.db = sqlite_utils.Database(conn)
+            self._migrate()
+        except sqlite3.DatabaseError as e:
+            raise StoreError(f"cannot use database {self.path}: {e}") from None
+
+    def close(self) -> None:
+        self.db.conn.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    # schema --------------------------------------------------------------
+    def schema_version(self) -> int:
+        if "schema_migrations" not in self.db.table_names():
+            return 0
+        row = self.db.execute("SELECT max(version) FROM schema_migrations").fetchone()
+        return row[0] or 0
+
+    def _migrate(self) -> None:
+        current = self.schema_version()
+        if current > LATEST:
+            raise StoreError(
+                f"{self.path} was written by a newer glowtrace (schema {current}, "
+                f"this version knows up to {LATEST}): upgrade glowtrace")
+        for version, name, fn in MIGRATIONS:
+            if version <= current:
+                continue
+            with self.db.conn:
+                if "schema_migrations" not in self.db.table_names():
+                    self.db["schema_migrations"].create(
+                        {"version": int, "name": str, "applied_at": str}, pk="version")
+                fn(self.db)
+                self.db["schema_migrations"].insert(
+                    {"version": version, "name": name, "applied_at": _now()})
+
+    # captures ------------------------------------------------------------
+    def save_capture(self, raw: RawCapture, tube_type: str | None = None,
+                     notes: str | None = None) -> str:
+        meta_blob, samples_blob = samples_codec.encode(raw.blocks)
+        row = {
+            "uuid": raw.uuid, "tube": raw.tube, "section": raw.section,
+            "started_at": raw.started_at, "stored_at": _now(),
+            "complete": int(raw.complete), "incomplete_reason": raw.incomplete_reason,
+            "end_reason": raw.end_reason, "trip_cause": raw.trip["cause"] if raw.trip else None,
+            "board_id": raw.hello.get("board"), "firmware": raw.hello.get("firmware"),
+            "port": raw.port, "ambient_c": raw.ambient_c, "n_sets": raw.n_sets,
+            "n_blocks": len(raw.blocks), "params": json.dumps(raw.params),
+            "hello": json.dumps(raw.hello), "phases": json.dumps(raw.phases),
+            "end_record": json.dumps(raw.end), "trip_record": json.dumps(raw.trip),
+            "link": json.dumps(raw.link),
+        }
+        try:
+            with self.db.conn:  # one transaction: the capture is whole or absent
+                if raw.tube is not None and not self.db["tubes"].count_where(
+                        "label = ?", [raw.tube]):
+                    self.db["tubes"].insert({"label": raw.tube, "type": tube_type,
+                                             "notes": notes, "created_at": _now()})
+                self.db["captures"].insert(row)
+                self.db["capture_samples"].insert({
+                    "capture_uuid": raw.uuid, "encoding": samples_codec.ENCODING,
+                    "channels": json.dumps(raw.channels), "n_sets": raw.n_sets,
+                    "blocks": meta_blob, "samples": samples_blob})
+        except sqlite3.IntegrityError as e:
+            raise StoreError(f"capture {raw.uuid} not stored: {e}") from None
+        except sqlite3.OperationalError as e:
+            raise StoreError(f"capture {raw.uuid} not stored ({self.path}): {e}") from None
+        return raw.uuid
+
+    def find_uuid(self, prefix: str) -> str:
+        rows = self.db.execute(
+            "SELECT uuid FROM captures WHERE uuid LIKE ? ORDER BY uuid LIMIT 2",
+            [prefix + "%"]).fetchall()
+        if not rows:
+            raise StoreError(f"no capture {prefix!r} in {self.path}")
+        if len(rows) > 1:
+            raise StoreError(f"{prefix!r} matches more than one capture: give more of the UUID")
+        return rows[0][0]
+
+    def load_capture(self, uuid: str) -> RawCapture:
+        uuid = self.find_uuid(uuid)
+        c = self.db["captures"].get(uuid)
+        s = self.db["capture_samples"].get(uuid)
+        if s["encoding"] != samples_codec.ENCODING:
+            raise StoreError(f"capture {uuid}: unknown sample encoding {s['encoding']}")
+        return RawCapture(
+            tube=c["tube"], section=c["section"], port=c["port"],
+            hello=json.loads(c["hello"]), params=json.loads(c["params"]),
+            channels=json.loads(s["channels"]), ambient_c=c["ambient_c"],
+            phases=json.loads(c["phases"]),
+            blocks=samples_codec.decode(s["blocks"], s["samples"]),
+            end=json.loads(c["end_record"]), trip=json.loads(c["trip_record"]),
+            incomplete_reason=c["incomplete_reason"], link=json.loads(c["link"]),
+            started_at=c["started_at"], uuid=c["uuid"])
+
+    def list_captures(self, tube: str | None = None) -> list[dict]:
+        where, args = ("WHERE c.tube = ?", [tube]) if tube else ("", [])
+        sql = f"""SELECT c.uuid, c.tube, t.type, c.section, c.started_at, c.complete,
+                  c.incomplete_reason, c.end_reason, c.trip_cause, c.n_sets, c.ambient_c,
+                  length(s.samples) + length(s.blocks) AS sample_bytes
+                  FROM captures c LEFT JOIN tubes t ON t.label = c.tube
+                  LEFT JOIN capture_samples s ON s.capture_uuid = c.uuid
+                  {where} ORDER BY c.started_at, c.uuid"""
+        cur = self.db.execute(sql, args)
+        cols = [d[0] for d in cur.description]
+        return [dict(zip(cols, r)) for r in cur.fetchall()]
+
+    def tube(self, label: str) -> dict | None:
+        rows = list(self.db["tubes"].rows_where("label = ?", [label]))
+        return rows[0] if rows else None
