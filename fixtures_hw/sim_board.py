@@ -185,6 +185,8 @@ class SimBoard:
             if self.reset_at_us >= 0 and t >= self.reset_at_us:
                 self.mask = 0
                 raise SimReset()
+            if self.fault == "converter" and t >= 100000 and self.mask:
+                raise OSError("simulated converter fault")
             self._advance(t)
             amps = self._solve()
             base = k * nch
@@ -207,6 +209,8 @@ class SimBoard:
             if tripped:
                 self.mask = 0
                 return k + 1, t0, True
+        # the chunk's time is used up when its last set's period ends
+        self._advance(t0 + n_sets * interval)
         if self.pace:
             self._pace()
         return n_sets, t0, False

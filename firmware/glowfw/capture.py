@@ -42,8 +42,9 @@ def parse_params(raw, board):
     board_max = board.max_on_s
     if p["max_on_s"] is None or p["max_on_s"] > board_max:
         p["max_on_s"] = board_max
-    if not 0.05 <= p["max_s"] <= p["max_on_s"]:
-        p["max_s"] = min(max(p["max_s"], 0.05), p["max_on_s"])
+    # the capture's length and the on-time limit are separate: the supervisor
+    # trips at max_on_s even if the capture asked for longer
+    p["max_s"] = min(max(float(p["max_s"]), 0.05), board_max)
     fs = board.full_scale_a(p["range"])
     if p["trip_a"] is None or p["trip_a"] > fs:
         p["trip_a"] = 0.95 * fs

@@ -9,6 +9,7 @@
 #
 # Link budget with 3 channels (PROTOCOL.md has the same table):
 #   dense  0-20 ms   24 us/set, 125 kS/s aggregate   834 sets  5.0 kB
+#          (one DMA acquisition, sent in blocks of 41 sets, ~1 ms each)
 #   fast   20-500 ms 100 us/set x4 oversampled      4800 sets 28.8 kB
 #   mid    0.5-5 s   1 ms/set  x16                  4500 sets 27.0 kB
 #   slow   5 s-end   10 ms/set x16                   100 sets/s 0.6 kB/s
@@ -25,8 +26,8 @@ BASELINE = ("baseline", 0, 1000, 16, 32, 32)
 def build(n_channels, max_us):
     dense_interval = DENSE_US_PER_CHANNEL * n_channels
     phases = [
-        ("dense", DENSE_END_US, dense_interval, 1, 40,
-         DENSE_END_US // dense_interval),
+        ("dense", DENSE_END_US, dense_interval, 1, 1000 // dense_interval,
+         (DENSE_END_US + dense_interval - 1) // dense_interval),
         ("fast", 500000, 100, 4, 100, 100),
         ("mid", 5000000, 1000, 16, 100, 100),
         ("slow", 1 << 30, 10000, 16, 10, 10),

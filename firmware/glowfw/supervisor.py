@@ -47,7 +47,7 @@ class Supervisor:
             self.open_checked = True
             if min_section_mean < self.open_code:
                 return OPEN_HEATER
-        if t_us >= self.max_on_us:
+        if t_us > self.max_on_us:
             return MAX_ON_TIME
         if self.host_silent():
             return HOST_SILENT

@@ -233,7 +233,8 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--ambient-c", type=float, help="room temperature, C")
     s.add_argument("--flash-a", type=float, help="share of section A that flashes (0-0.3)")
     s.add_argument("--flash-b", type=float, help="share of section B that flashes (0-0.3)")
-    s.add_argument("--fault", choices=["open", "short", "intermittent"])
+    s.add_argument("--fault", choices=["open", "short", "intermittent", "converter"],
+                   help="simulated fault (converter: the ADC fails 0.1 s after switch-on)")
     s.add_argument("--fault-section", choices=["A", "B"])
     s.add_argument("--supply-v", type=float, help="heater supply voltage")
     s.add_argument("--source-ohm", type=float, help="supply source resistance (sag)")

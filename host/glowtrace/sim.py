@@ -20,7 +20,7 @@ SCENARIO_KEYS = {
     "contact_ohm": float, "preheat_k": float, "reset_at_s": float, "pace": float,
     "light": int, "seed": int, "adc_noise_lsb": float,
 }
-FAULTS = ("open", "short", "intermittent")
+FAULTS = ("open", "short", "intermittent", "converter")
 
 
 def tube_presets() -> dict:

@@ -1,0 +1,107 @@
+"""The real firmware on the simulated tester: captures, trips and resets."""
+
+import time
+
+import numpy as np
+import pytest
+
+from glowtrace import protocol
+from glowtrace.convert import to_physical
+from glowtrace.tester import CaptureInterrupted
+from simhelp import sim_tester
+
+
+def test_handshake_reports_versions_board_and_calibration():
+    with sim_tester(serial="0042") as t:
+        h = t.hello
+    assert h["protocol"] == protocol.PROTOCOL_VERSION
+    assert h["board"] == "sim-0042" and h["firmware"]
+    assert h["channels"] == ["ia", "ib", "v"]
+    assert "gain" in h["calibration"] and h["frontend"]["adc"]["bits"] == 12
+
+
+def test_capture_is_whole_and_timed():
+    with sim_tester(tube="12AX7", seed=3) as t:
+        raw = t.capture("T", "AB", {"max_s": 30})
+        status = t.status()
+    assert raw.complete and raw.end_reason == "settled"
+    assert status["heater"] == 0 and status["state"] == "idle"
+    t_us, sums, osm = raw.arrays()
+    assert (t_us[t_us < 0] >= -40000).all() and (t_us >= 0).sum() > 10000
+    assert np.all(np.diff(t_us) > 0)
+    dense = t_us[(t_us >= 0) & (t_us < 20000)]
+    assert len(dense) >= 800  # >= 100 kS/s aggregate over 3 channels for 20 ms
+    assert set(np.unique(osm)) == {1, 4, 16}
+
+
+def test_trip_on_shorted_heater_within_1ms():
+    with sim_tester(fault="short", fault_section="A") as t:
+        raw = t.capture("T", "A", {"range": "high", "trip_a": 20})
+        status = t.status()
+    assert raw.trip["cause"] == "over_current"
+    assert raw.end["reason"] == "trip" and 0 <= raw.end["off_us"] <= 1000
+    assert status["heater"] == 0
+
+
+def test_trip_on_open_heater():
+    with sim_tester(fault="open", fault_section="B") as t:
+        raw = t.capture("T", "AB", {})
+    assert raw.trip["cause"] == "open_heater"
+    assert 20000 <= raw.trip["at_us"] <= 25000
+
+
+def test_trip_after_max_on_time():
+    with sim_tester() as t:
+        raw = t.capture("T", "A", {"max_s": 60, "max_on_s": 1.0, "settle_min_s": 50})
+    assert raw.trip["cause"] == "max_on_time"
+    assert 1.0e6 <= raw.trip["at_us"] <= 1.2e6
+
+
+def test_trip_when_host_goes_silent():
+    # pace=1: the simulated heater runs in real time, so host silence is real
+    with sim_tester(pace=1.0) as t:
+        t.link.send(protocol.CAPTURE, b'{"section": "A", "silence_ms": 500}')
+        t0 = time.monotonic()
+        trip = None
+        while time.monotonic() - t0 < 5 and trip is None:
+            f = t.link.receive(0.2)  # listen, never send: the host is "silent"
+            if f is not None and f.mtype == protocol.TRIP:
+                trip = f.json()
+        status = t.status()
+    assert trip is not None and trip["cause"] == "host_silent"
+    assert 0.4e6 <= trip["at_us"] <= 1.5e6
+    assert status["heater"] == 0
+
+
+def test_firmware_error_switches_off_and_keeps_running():
+    with sim_tester(fault="converter") as t:
+        raw = t.capture("T", "A", {})
+        status = t.status()
+    assert raw.trip["cause"] == "exception" and "converter" in raw.trip["detail"]
+    assert status["heater"] == 0 and status["state"] == "idle"
+
+
+def test_board_reset_mid_capture_is_reported_incomplete():
+    with sim_tester(reset_at_s=1.0) as t:
+        with pytest.raises(CaptureInterrupted) as e:
+            t.capture("T", "A", {})
+        assert "reset" in e.value.reason
+        assert e.value.raw.blocks and e.value.raw.end is None
+        assert t.status()["heater"] == 0
+
+
+def test_refused_parameters_give_the_firmware_reason():
+    from glowtrace.errors import DeviceError
+    with sim_tester() as t:
+        with pytest.raises(DeviceError, match="unknown capture parameter"):
+            t.capture("T", "A", {"bogus": 1})
+
+
+def test_supply_sag_is_visible_on_voltage_channel():
+    with sim_tester(source_ohm=1.0) as t:
+        raw = t.capture("T", "AB", {"max_s": 5})
+    c = to_physical(raw)
+    on = c.t_s >= 0
+    v_early = c.volts[on][:5].mean()
+    v_late = c.volts[on][-50:].mean()
+    assert v_early < 0.85 * v_late  # inrush through 1 ohm pulls the supply down
