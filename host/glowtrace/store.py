@@ -5,6 +5,7 @@ whole or not at all."""
 
 import json
 import sqlite3
+from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -43,19 +44,46 @@ MIGRATIONS = [
 LATEST = MIGRATIONS[-1][0]
 
 
+def _insert(conn, table: str, row: dict) -> None:
+    # plain SQL: sqlite-utils' insert commits by itself, which would split the
+    # one transaction a capture is written in
+    cols = ", ".join(row)
+    marks = ", ".join("?" for _ in row)
+    conn.execute(f"INSERT INTO [{table}] ({cols}) VALUES ({marks})", list(row.values()))
+
+
 class Store:
-    def __init__(self, path: str | Path, create: bool = True):
+    def __init__(self, path: str | Path, create: bool = True, timeout: float = 5.0):
         self.path = Path(path)
         if not create and not self.path.exists():
             raise StoreError(f"no database at {self.path}")
         self.path.parent.mkdir(parents=True, exist_ok=True)
         try:
-            conn = sqlite3.connect(self.path, timeout=5.0)
+            # autocommit mode: transactions are opened and closed explicitly
+            conn = sqlite3.connect(self.path, timeout=timeout, isolation_level=None)
             conn.execute("PRAGMA foreign_keys = ON")
             self.db = sqlite_utils.Database(conn)
             self._migrate()
         except sqlite3.DatabaseError as e:
-            raise StoreError(f"cannot use database {self.path}: {e}") from None
+            raise self._error("cannot use database", e) from None
+
+    def _error(self, what: str, e: Exception) -> StoreError:
+        if "locked" in str(e):
+            return StoreError(f"{what} {self.path}: it is locked by another program "
+                              "(is another glowtrace writing to it?)")
+        return StoreError(f"{what} {self.path}: {e}")
+
+    @contextmanager
+    def transaction(self):
+        """All or nothing: BEGIN IMMEDIATE ... COMMIT, ROLLBACK on any error."""
+        conn = self.db.conn
+        conn.execute("BEGIN IMMEDIATE")
+        try:
+            yield conn
+        except BaseException:
+            conn.execute("ROLLBACK")
+            raise
+        conn.execute("COMMIT")
 
     def close(self) -> None:
         self.db.conn.close()
@@ -82,13 +110,13 @@ class Store:
         for version, name, fn in MIGRATIONS:
             if version <= current:
                 continue
-            with self.db.conn:
+            with self.transaction() as conn:
                 if "schema_migrations" not in self.db.table_names():
                     self.db["schema_migrations"].create(
                         {"version": int, "name": str, "applied_at": str}, pk="version")
                 fn(self.db)
-                self.db["schema_migrations"].insert(
-                    {"version": version, "name": name, "applied_at": _now()})
+                _insert(conn, "schema_migrations",
+                        {"version": version, "name": name, "applied_at": _now()})
 
     # captures ------------------------------------------------------------
     def save_capture(self, raw: RawCapture, tube_type: str | None = None,
@@ -107,20 +135,18 @@ class Store:
             "link": json.dumps(raw.link),
         }
         try:
-            with self.db.conn:  # one transaction: the capture is whole or absent
+            with self.transaction() as conn:  # the capture is whole or absent
                 if raw.tube is not None and not self.db["tubes"].count_where(
                         "label = ?", [raw.tube]):
-                    self.db["tubes"].insert({"label": raw.tube, "type": tube_type,
-                                             "notes": notes, "created_at": _now()})
-                self.db["captures"].insert(row)
-                self.db["capture_samples"].insert({
+                    _insert(conn, "tubes", {"label": raw.tube, "type": tube_type,
+                                            "notes": notes, "created_at": _now()})
+                _insert(conn, "captures", row)
+                _insert(conn, "capture_samples", {
                     "capture_uuid": raw.uuid, "encoding": samples_codec.ENCODING,
                     "channels": json.dumps(raw.channels), "n_sets": raw.n_sets,
                     "blocks": meta_blob, "samples": samples_blob})
-        except sqlite3.IntegrityError as e:
-            raise StoreError(f"capture {raw.uuid} not stored: {e}") from None
-        except sqlite3.OperationalError as e:
-            raise StoreError(f"capture {raw.uuid} not stored ({self.path}): {e}") from None
+        except sqlite3.DatabaseError as e:
+            raise self._error(f"capture {raw.uuid} not stored in", e) from None
         return raw.uuid
 
     def find_uuid(self, prefix: str) -> str:

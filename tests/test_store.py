@@ -1,0 +1,157 @@
+"""The SQLite logbook: lossless samples, migrations, whole-or-nothing writes."""
+
+import sqlite3
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from glowtrace import samples_codec, store as store_mod
+from glowtrace.capture import RawCapture, blocks_equal
+from glowtrace.errors import StoreError
+from glowtrace.procedure import run_capture
+from glowtrace.protocol import Block
+from glowtrace.store import Store
+from simhelp import sim_url
+
+
+def _raw(blocks, **kw):
+    return RawCapture(tube="T1", section="A", port="test", hello={"board": "x"},
+                      channels=["ia", "ib", "v"], blocks=blocks,
+                      end={"reason": "settled", "blocks": len(blocks),
+                           "sets": sum(b.n_sets for b in blocks)}, **kw)
+
+
+@st.composite
+def block_lists(draw):
+    nch = draw(st.integers(1, 4))
+    out, t = [], -32000
+    for i in range(draw(st.integers(1, 6))):
+        n = draw(st.integers(1, 50))
+        vals = draw(st.lists(st.integers(0, 65535), min_size=n * nch, max_size=n * nch))
+        interval = draw(st.integers(1, 10000))
+        out.append(Block(1, i, i, nch, n, draw(st.integers(1, 16)), t, interval,
+                         np.array(vals, "<u2").tobytes()))
+        t += n * interval
+    return out
+
+
+@settings(max_examples=60, deadline=None)
+@given(block_lists())
+def test_codec_is_lossless_for_any_values(blocks):
+    assert blocks_equal(samples_codec.decode(*samples_codec.encode(blocks)), blocks)
+
+
+def test_simulated_capture_stored_and_read_back_bit_exact(db_path):
+    with Store(db_path) as s:
+        raw = run_capture(sim_url(tube="6V6", seed=5), s, "KS-1", "A", {"max_s": 20},
+                          tube_type="6V6")
+        back = s.load_capture(raw.uuid[:8])
+        rows = s.list_captures()
+    assert raw.complete and blocks_equal(back.blocks, raw.blocks)
+    for a, b in zip(raw.arrays(), back.arrays()):
+        assert np.array_equal(a, b)
+    assert back.hello == raw.hello and back.params == raw.params
+    assert back.hello["calibration"] == raw.hello["calibration"]
+    assert rows[0]["type"] == "6V6" and rows[0]["complete"] == 1
+    assert rows[0]["sample_bytes"] < 50_000  # a few tens of kB per capture
+
+
+def test_incomplete_capture_recorded_with_reason(db_path):
+    with Store(db_path) as s:
+        raw = run_capture(sim_url(reset_at_s=0.8), s, "KS-2", "A", {})
+        back = s.load_capture(raw.uuid)
+        row = s.list_captures()[0]
+    assert not raw.complete and "reset" in raw.incomplete_reason
+    assert row["complete"] == 0 and "reset" in row["incomplete_reason"]
+    assert back.blocks and blocks_equal(back.blocks, raw.blocks)  # nothing thrown away
+
+
+def test_migrations_are_recorded(db_path):
+    with Store(db_path) as s:
+        rows = list(s.db["schema_migrations"].rows)
+    assert [r["version"] for r in rows] == [v for v, _, _ in store_mod.MIGRATIONS]
+    with Store(db_path) as s:  # reopening applies nothing twice
+        assert s.db["schema_migrations"].count == len(store_mod.MIGRATIONS)
+
+
+def test_newer_schema_is_refused_and_left_alone(db_path):
+    with Store(db_path) as s:
+        s.db["schema_migrations"].insert({"version": 99, "name": "future", "applied_at": "x"})
+    before = db_path.read_bytes()
+    with pytest.raises(StoreError, match="newer glowtrace"):
+        Store(db_path)
+    assert db_path.read_bytes() == before
+
+
+def test_failed_write_leaves_nothing(db_path, monkeypatch):
+    blocks = [Block(1, 0, 0, 3, 2, 1, 0, 24, b"\x01\x00" * 6)]
+    real_insert = store_mod._insert
+
+    def failing_insert(conn, table, row):
+        if table == "capture_samples":  # the last of the capture's three rows
+            raise sqlite3.OperationalError("disk I/O error")
+        real_insert(conn, table, row)
+    with Store(db_path) as s:
+        monkeypatch.setattr(store_mod, "_insert", failing_insert)
+        with pytest.raises(StoreError, match="not stored"):
+            s.save_capture(_raw(blocks))
+        monkeypatch.undo()
+        assert s.db["captures"].count == 0 and s.db["tubes"].count == 0
+        s.save_capture(_raw(blocks))  # and the database is still usable
+        assert s.db["captures"].count == 1
+
+
+def test_locked_database_gives_clear_error(db_path):
+    Store(db_path).close()
+    other = sqlite3.connect(db_path)
+    other.execute("BEGIN EXCLUSIVE")
+    try:
+        with pytest.raises(StoreError, match="locked by another program"):
+            Store(db_path, timeout=0.2)
+    finally:
+        other.rollback()
+        other.close()
+
+
+def test_not_a_database_gives_clear_error(tmp_path):
+    p = tmp_path / "junk.db"
+    p.write_bytes(b"this is not sqlite" * 100)
+    with pytest.raises(StoreError, match="cannot use database"):
+        Store(p)
+
+
+def test_killed_writer_leaves_database_consistent(db_path, tmp_path):
+    """A process killed in the middle of writing captures: every capture that
+    committed is whole, the rest absent."""
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+    script = tmp_path / "writer.py"
+    script.write_text(
+        "import sys\nfrom glowtrace.store import Store\n"
+        "from glowtrace.capture import RawCapture\nfrom glowtrace.protocol import Block\n"
+        "import numpy as np\n"
+        "s = Store(sys.argv[1])\n"
+        "data = np.arange(3000 * 3, dtype='<u2').tobytes()\n"
+        "for i in range(100000):\n"
+        "    b = [Block(1, 0, 1, 3, 3000, 1, 0, 24, data)]\n"
+        "    s.save_capture(RawCapture(tube='K', section='A', port='p', hello={},\n"
+        "        channels=['ia','ib','v'], blocks=b, end={'reason':'x','blocks':1,'sets':3000}))\n"
+        "    print(i, flush=True)\n")
+    p = subprocess.Popen([sys.executable, str(script), str(db_path)],
+                         stdout=subprocess.PIPE, text=True)
+    for _ in range(5):
+        p.stdout.readline()
+    time.sleep(0.05)
+    os.kill(p.pid, signal.SIGKILL)
+    p.wait()
+    with Store(db_path) as s:
+        assert s.db.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        n = s.db["captures"].count
+        assert n >= 5 and s.db["capture_samples"].count == n
+        for row in s.list_captures():
+            assert s.load_capture(row["uuid"]).n_sets == 3000
