@@ -4,6 +4,10 @@ from pathlib import Path
 
 import pytest
 
+# tests/fw holds MicroPython test modules: test_firmware_unix.py runs them
+# under the micropython executable, pytest must not import them itself
+collect_ignore = ["fw"]
+
 REPO = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(REPO / "host"))
 
