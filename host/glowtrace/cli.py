@@ -26,6 +26,10 @@ def _db(args) -> Path:
     return Path(args.db) if args.db else paths.default_db_path()
 
 
+def _num(value, digits: int) -> str:
+    return "-" if value is None else f"{value:.{digits}f}"
+
+
 def _emit(args, data, render) -> None:
     if args.json:
         print(json.dumps(data, indent=2, default=str))
@@ -126,12 +130,19 @@ def cmd_capture(args) -> int:
                 raw = run_capture(port, store, args.tube, args.section, params, update,
                                   tube_type=args.type)
         except UserInterrupt as e:
-            err.print(f"Interrupted: heater switched off; the partial capture "
-                      f"{e.raw.uuid} is stored, marked incomplete.")
+            off = ("heater off, confirmed by the tester" if e.off_confirmed else
+                   "heater-off NOT confirmed: the tester switches off by itself when "
+                   "the host is silent for 2 s; check it")
+            err.print(f"Interrupted: {off}. The partial capture {e.raw.uuid} is "
+                      "stored, marked incomplete.")
             return 130
     s = summary(raw)
     s["database"] = str(_db(args))
     _emit(args, s, _render_summary)
+    if raw.trip and raw.trip["cause"] == "over_current" and args.range == "low":
+        err.print("[yellow]Over-current trip on the low range: a power tube's or "
+                  "rectifier's inrush needs --range high. If it trips there too, "
+                  "suspect a shorted heater.[/]")
     if not raw.complete:
         err.print(f"[yellow]Capture incomplete: {raw.incomplete_reason}[/]")
         return 2
@@ -192,12 +203,14 @@ def cmd_demo(args) -> int:
 
     def render(rows):
         t = Table("tube", "type", "customer", "sect.", "end", "peak A", "hot A",
-                  "supply V", "sets", "stored kB", title=f"Stored in {db}")
+                  "supply V", "glow peak", "kB", title=f"Stored in {db}")
         for r in rows:
+            glow = r.get("glow_peak_over_settled")
             for sec in r["section"]:
-                t.add_row(r["tube"], r["type"], r["customer"], sec, r["end_reason"],
-                          f"{r[f'peak_a_{sec}']:.3f}", f"{r[f'final_a_{sec}']:.3f}",
-                          f"{r['supply_v']:.2f}", str(r["sets"]),
+                t.add_row(r["tube"], r["type"], r["customer"].split(",")[0], sec,
+                          r["end_reason"], f"{r[f'peak_a_{sec}']:.3f}",
+                          _num(r[f"final_a_{sec}"], 3), f"{r['supply_v']:.2f}",
+                          f"{glow:.2f}x" if glow else "-",
                           f"{r['stored_bytes'] / 1000:.1f}")
         out.print(t)
         out.print(f"{len(rows)} captures in {elapsed:.1f} s. Try: glowtrace list --db {db}")

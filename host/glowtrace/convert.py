@@ -62,6 +62,14 @@ def summary(raw: RawCapture) -> dict:
             ion = i[on]
             tail = curve.t_s[on] >= curve.t_s[on][-1] - 1.0
             out[f"peak_a_{sec}"] = round(float(ion.max()), 4)
-            out[f"final_a_{sec}"] = round(float(ion[tail].mean()), 4)
+            # the current at the end means "hot" only if the capture ran its course
+            ran = raw.end_reason in ("settled", "max_time")
+            out[f"final_a_{sec}"] = round(float(ion[tail].mean()), 4) if ran else None
         out["supply_v"] = round(float(np.median(curve.volts[on])), 3)
+        if curve.light is not None:
+            # a raw fact for the eye, not the analysis: glow peak over settled glow
+            lon = curve.light[on]
+            settled = float(lon[curve.t_s[on] >= curve.t_s[on][-1] - 1.0].mean())
+            out["glow_peak_over_settled"] = (round(float(lon.max()) / settled, 2)
+                                             if settled > 0 else None)
     return out

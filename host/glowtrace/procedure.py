@@ -17,6 +17,7 @@ class UserInterrupt(KeyboardInterrupt):
     def __init__(self, raw: RawCapture):
         super().__init__("interrupted")
         self.raw = raw
+        self.off_confirmed = False
 
 
 def run_capture(port_url: str, store: Store, tube: str, section: str,
@@ -34,7 +35,9 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
             raw.incomplete_reason = e.reason
         store.save_capture(raw, tube_type=tube_type, notes=notes)
         if raw.incomplete_reason == "interrupted by the user":
-            raise UserInterrupt(raw)
+            stop = UserInterrupt(raw)
+            stop.off_confirmed = tester.ensure_off()
+            raise stop
         return raw
     finally:
         tester.abort()  # idempotent on the firmware: heater off, whatever state

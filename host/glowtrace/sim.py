@@ -89,7 +89,10 @@ class SimTester:
         self.proc = subprocess.Popen(
             [paths.micropython_executable(), str(paths.FIXTURES_DIR / "sim_main.py"),
              self.scenario_file.name],
-            stdin=master, stdout=master, stderr=self.log, env=env, close_fds=True)
+            stdin=master, stdout=master, stderr=self.log, env=env, close_fds=True,
+            # its own session: Ctrl-C in the terminal goes to the host, which
+            # then tells the tester to switch off, as with a real board
+            start_new_session=True)
         os.close(master)
         # keep one slave descriptor so the pty does not hang up between
         # openers (a real USB port stays present while the board is plugged)

@@ -6,7 +6,7 @@ import time
 
 from . import protocol
 from .capture import RawCapture
-from .errors import DeviceError, LinkError
+from .errors import DeviceError, GlowtraceError, LinkError
 from .link import Link
 
 HEARTBEAT_S = 0.4      # the firmware trips after 2 s of silence by default
@@ -72,6 +72,14 @@ class Tester:
             self.link.send(protocol.ABORT)
         except LinkError:
             pass
+
+    def ensure_off(self, timeout: float = 1.0) -> bool:
+        """Ask for heater off and confirm it from the tester's status."""
+        self.abort()
+        try:
+            return self.status(timeout)["heater"] == 0
+        except GlowtraceError:
+            return False
 
     def capture(self, tube: str | None, section: str, params: dict,
                 progress=None) -> RawCapture:
