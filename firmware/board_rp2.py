@@ -26,6 +26,8 @@ _ADC_CS = _ADC_BASE
 _ADC_FCS = _ADC_BASE + 0x08
 _ADC_FIFO = _ADC_BASE + 0x0C
 _ADC_DIV = _ADC_BASE + 0x10
+# DREQ numbers from the RP2040 and RP2350 datasheets (DMA chapter); the
+# RP2350 value is from memory and is checked on the first RP2350 build
 _DREQ_ADC = 48 if _RP2350 else 36
 _ADC_CLOCK_HZ = const(48000000)
 _WDT_MS = const(8000)
@@ -181,6 +183,7 @@ class Rp2Board:
                     break
         finally:
             machine.mem32[_ADC_CS] = 1  # stop free-running
+            machine.mem32[_ADC_FCS] = 0  # FIFO off: paced phases read RESULT
             remaining = dma.count
             dma.close()
         done = (total - remaining) // nch if tripped else n_sets

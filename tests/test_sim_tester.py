@@ -105,3 +105,36 @@ def test_supply_sag_is_visible_on_voltage_channel():
     v_early = c.volts[on][:5].mean()
     v_late = c.volts[on][-50:].mean()
     assert v_early < 0.85 * v_late  # inrush through 1 ohm pulls the supply down
+
+
+def test_intermittent_contact_shows_as_dropouts():
+    with sim_tester(fault="intermittent", fault_section="A") as t:
+        raw = t.capture("T", "A", {"max_s": 3, "settle_min_s": 10})
+    c = to_physical(raw)
+    fast = (c.t_s > 0.02) & (c.t_s < 0.5)  # 100 us sets: the 4 ms opens show
+    i = c.amps["A"][fast]
+    assert (i < 0.01).sum() >= 40 and (i > 0.1).sum() > 1000
+
+
+def test_scenario_overrides_the_preset_heater():
+    with sim_tester(tube="12AX7", section_v=12.6, section_a=0.1, supply_v=12.6) as t:
+        raw = t.capture("T", "A", {"max_s": 40})
+    c = to_physical(raw)
+    assert c.amps["A"][-50:].mean() == pytest.approx(0.1, rel=0.03)
+
+
+def test_firmware_resynchronises_after_garbage_from_host():
+    with sim_tester() as t:
+        t.link.port.write(b"\x00\x07garbage\xff\xfe" * 20 + b"\x00")
+        hello = t.identify()
+        assert hello["board"].startswith("sim-")
+        assert t.status()["heater"] == 0
+
+
+def test_probe_finds_glowtrace_on_a_port():
+    from glowtrace.ports import probe
+    from glowtrace.sim import SimTester, build_scenario
+    with SimTester(build_scenario(serial="0777")) as sim:
+        hello = probe(sim.path)
+    assert hello["board"] == "sim-0777"
+    assert probe("/dev/null") is None

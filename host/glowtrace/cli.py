@@ -59,7 +59,8 @@ def cmd_ports(args) -> int:
 # sim -----------------------------------------------------------------------
 def _sim_settings(args) -> dict:
     keys = ("tube", "serial", "ambient_c", "flash_a", "flash_b", "fault", "fault_section",
-            "supply_v", "source_ohm", "preheat_k", "reset_at_s", "pace", "seed")
+            "supply_v", "source_ohm", "preheat_k", "reset_at_s", "pace", "seed",
+            "section_v", "section_a", "hot_cold_ratio", "tau_sleeve_s")
     s = {k: getattr(args, k) for k in keys if getattr(args, k) is not None}
     if args.light:
         s["light"] = 1
@@ -256,6 +257,10 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--pace", type=float, help="simulated seconds per wall second (0: flat out)")
     s.add_argument("--seed", type=int, help="noise seed")
     s.add_argument("--light", action="store_true", help="fit the photodiode channel")
+    s.add_argument("--section-v", type=float, help="rated heater volts per section")
+    s.add_argument("--section-a", type=float, help="rated heater amps per section")
+    s.add_argument("--hot-cold-ratio", type=float, help="hot over cold resistance")
+    s.add_argument("--tau-sleeve-s", type=float, help="cathode sleeve time constant, s")
     s.set_defaults(func=cmd_sim)
 
     s = sub.add_parser("capture", parents=[common], help="capture one start-up curve")

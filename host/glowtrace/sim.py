@@ -20,6 +20,10 @@ SCENARIO_KEYS = {
     "contact_ohm": float, "preheat_k": float, "reset_at_s": float, "pace": float,
     "light": int, "seed": int, "adc_noise_lsb": float,
 }
+# settings that override the tube preset's heater (per section)
+HEATER_KEYS = {"section_v": float, "section_a": float, "hot_cold_ratio": float,
+               "tau_wire_s": float, "tau_sleeve_s": float, "tau_flash_s": float}
+SCENARIO_KEYS.update(HEATER_KEYS)
 FAULTS = ("open", "short", "intermittent", "converter")
 
 
@@ -41,8 +45,13 @@ def build_scenario(**settings) -> dict:
         raise GlowtraceError(f"unknown simulator setting(s): {', '.join(sorted(unknown))}")
     if settings.get("fault") not in (None, *FAULTS):
         raise GlowtraceError(f"fault must be one of {', '.join(FAULTS)}")
-    scenario = {k: v for k, v in settings.items() if k != "tube"}
-    scenario["tube"] = dict(presets[name], name=name)
+    scenario = {k: v for k, v in settings.items() if k != "tube" and k not in HEATER_KEYS}
+    tube = dict(presets[name], name=name)
+    tube.update({k: v for k, v in settings.items() if k in HEATER_KEYS})
+    if tube["section_v"] <= 0 or tube["section_a"] <= 0 or tube["hot_cold_ratio"] <= 1:
+        raise GlowtraceError("section_v and section_a must be positive and "
+                             "hot_cold_ratio above 1")
+    scenario["tube"] = tube
     scenario["frontend_path"] = str(paths.require(paths.FRONTEND_PATH))
     scenario["tungsten_path"] = str(paths.require(paths.TUNGSTEN_PATH))
     return scenario
