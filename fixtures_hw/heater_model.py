@@ -1,7 +1,8 @@
 # Physical model of one heater section for the simulated tester.
 #
 # Three thermal nodes:
-#   wire    the heater wire inside the cathode sleeve (fast, tens of ms)
+#   wire    the heater wire and its insulation inside the cathode sleeve (fast,
+#           a fraction of a second)
 #   sleeve  the cathode sleeve, radiating to the room (slow, seconds)
 #   exposed a share of the wire that heats without the sleeve's thermal mass
 #           (the part of a heater that flashes); radiates on its own
@@ -12,13 +13,13 @@
 # Integration: exponential Euler per node, stable for any step.
 import math
 
-SIGMA_FREE = 250.0  # wire runs this much hotter than its sleeve when hot, K
+WIRE_OVER_SLEEVE_K = 150.0  # default: wire this much hotter than its sleeve when hot
 
 
 class HeaterSection:
     def __init__(self, tungsten, rated_v, rated_a, hot_cold_ratio=6.5,
                  tau_wire_s=0.08, tau_sleeve_s=4.0, flash_share=0.0,
-                 tau_flash_s=0.12, ambient_c=22.0):
+                 tau_flash_s=0.12, ambient_c=22.0, wire_over_sleeve_k=WIRE_OVER_SLEEVE_K):
         self.w = tungsten
         self.ta = ambient_c + 273.15
         r_hot = rated_v / rated_a
@@ -31,8 +32,9 @@ class HeaterSection:
         self.r20_main = (1.0 - f) * r20
         self.r20_exp = f * r20
         p_main = (1.0 - f) * p_hot
-        t_sleeve = t_hot - SIGMA_FREE
-        self.g_ws = p_main / SIGMA_FREE
+        t_sleeve = t_hot - wire_over_sleeve_k
+        self.t_sleeve_hot = t_sleeve
+        self.g_ws = p_main / wire_over_sleeve_k
         self.k_s = p_main / (t_sleeve ** 4 - self.ta ** 4)
         self.c_s = tau_sleeve_s * 4.0 * self.k_s * t_sleeve ** 3
         self.c_w = tau_wire_s * self.g_ws
@@ -92,7 +94,7 @@ class HeaterSection:
         approximation at 900 nm: exp(-hc / (lambda k T)), hc/(lambda k) =
         16000 K), 1.0 for the whole section when it has settled hot."""
         f = self.r20_exp / (self.r20_exp + self.r20_main)
-        ref = ((1.0 - f) * math.exp(-16000.0 / (self.t_hot - SIGMA_FREE))
+        ref = ((1.0 - f) * math.exp(-16000.0 / self.t_sleeve_hot)
                + f * math.exp(-16000.0 / self.t_hot))
         glow = (1.0 - f) * math.exp(-16000.0 / self.ts) + f * math.exp(-16000.0 / self.tx)
         return glow / ref
