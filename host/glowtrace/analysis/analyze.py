@@ -1,0 +1,131 @@
+"""One entry point for the analysis of a curve or a stored capture."""
+
+import math
+
+import numpy as np
+
+from ..catalogue import TubeType
+from ..physics.tungsten import ZERO_C_K, HeaterWire
+from . import ANALYSIS_VERSION, thermal
+from .curve import Curve, from_capture
+from .metrics import TAIL_S, first_crossing, measure
+
+FLASH_TRY_RMS = 2.0      # fit the flash model when the even one misses by more
+FLASH_MIN_GAIN = 25.0    # chi-square gain for the two extra parameters to count
+POOR_FIT_RMS = 3.0
+
+
+def _sig(x, digits=6):
+    """Round to significant digits for output; leave non-floats alone."""
+    if isinstance(x, (float, np.floating)):
+        x = float(x)
+        if not math.isfinite(x) or x == 0:
+            return x if math.isfinite(x) else None
+        return round(x, digits - 1 - int(math.floor(math.log10(abs(x)))))
+    if isinstance(x, dict):
+        return {k: _sig(v, digits) for k, v in x.items()}
+    if isinstance(x, list):
+        return [_sig(v, digits) for v in x]
+    return x
+
+
+def predict(model: thermal.ThermalModel, rated_v: float, rated_a: float) -> dict:
+    """What the fitted heater does under standard conditions."""
+    # long enough to settle: many sleeve time constants
+    t_end = min(600.0, max(30.0, 25.0 * model.tau_s + 10.0 * model.tau_w))
+    t, r, _, _ = model.in_circuit(rated_v, 0.0, t_end=t_end, n=300)
+    warm90 = first_crossing(t, r, r[0] + 0.9 * (r[-1] - r[0]))
+    # series-string test circuit: 4 x rated volts through 3 x rated V / rated A;
+    # warm-up time = heater voltage reaching 80 % of rated
+    t, _, _, vh = model.in_circuit(4 * rated_v, 3 * rated_v / rated_a, t_end=t_end, n=300)
+    series = first_crossing(t, vh, 0.8 * rated_v)
+    return {"rated_warmup_90_s": warm90, "series_warmup_s": series}
+
+
+def analyze_curve(c: Curve, ambient_c: float, tube_type: TubeType | None = None,
+                  rated_v: float | None = None, rated_a: float | None = None,
+                  history_cold_r20: float | None = None, fit_model: bool = True) -> dict:
+    if tube_type is not None:
+        rating = tube_type.section_rating()
+        rated_v, rated_a = rating.volts, rating.amps
+    wire = HeaterWire(tube_type.tungsten_k if tube_type else 1.0)
+    m = measure(c, ambient_c, wire, rated_v, rated_a, history_cold_r20)
+    out = dict(m.values)
+    out.update(flash_index=None, rated_peak_current_a=None, rated_warmup_90_s=None,
+               series_warmup_s=None)
+    warnings = list(m.warnings)
+    model = None
+    if m.t is None:
+        pass
+    elif not fit_model:
+        pass
+    elif not out["cold_start_ok"] or out["warmup_90_s"] is None:
+        warnings.append("thermal model not fitted: it needs a cold start with a resistance rise")
+    elif m.t[-1] < 3 * TAIL_S:
+        warnings.append("thermal model not fitted: the curve is too short")
+    else:
+        keep = np.isfinite(m.r)
+        b = thermal.bin_curve(m.t[keep], m.i[keep], m.r[keep], n_bins=60)
+        args = (b, out["cold_resistance_20c_ohm"], wire.k, ambient_c + ZERO_C_K,
+                m.r_end, m.v_end)
+        best = thermal.fit(*args, flash=False)
+        out["flash_index"] = 0.0
+        if best.rms > FLASH_TRY_RMS:
+            fl = thermal.fit(*args, flash=True, start=best.model)
+            if best.chi2 - fl.chi2 > FLASH_MIN_GAIN:
+                best = fl
+                out["flash_index"] = fl.model.f
+        if best.rms > POOR_FIT_RMS:
+            warnings.append(f"the thermal model misses this curve by {best.rms:.1f} x the "
+                            "measurement noise: predictions are uncertain")
+        model = best.model
+        out["thermal_model"] = dict(model.as_dict(), fit_rms=best.rms, fit_evaluations=best.nfev)
+        if tube_type is not None and tube_type.filament:
+            out["flash_index"] = None  # a bare filament has no sleeve to lag behind
+        if rated_v and rated_a:
+            out.update(predict(model, rated_v, rated_a))
+    if rated_v and out["cold_resistance_20c_ohm"]:
+        out["rated_peak_current_a"] = rated_v / out["cold_resistance_20c_ohm"]
+    if c.light is not None:
+        out["light_overshoot"] = light_overshoot(c)
+    out["rated_volts"], out["rated_amps"] = rated_v, rated_a
+    out["ambient_c"] = ambient_c
+    out["warnings"] = warnings
+    out["analysis_version"] = ANALYSIS_VERSION
+    return _sig(out)
+
+
+def light_overshoot(c: Curve) -> float | None:
+    """Peak light over settled light (mean of the last second), both above
+    the dark level before switch-on."""
+    pre, on = c.t < 0, c.t >= 0
+    dark = float(np.median(c.light[pre])) if pre.sum() >= 3 else 0.0
+    t, lt = c.t[on], c.light[on] - dark
+    settled = float(lt[t >= t[-1] - TAIL_S].mean())
+    if settled <= 0:
+        return None
+    return float(lt.max()) / settled
+
+
+def analyze_capture(raw, tube_type: TubeType | None = None,
+                    history_cold_r20: dict | None = None) -> dict:
+    """Every switched section of a tester capture, and their imbalance."""
+    ambient = raw.ambient_c if raw.ambient_c is not None else 20.0
+    curves = from_capture(raw)
+    sections = {}
+    for sec, c in curves.items():
+        hist = (history_cold_r20 or {}).get(sec)
+        try:
+            sections[sec] = analyze_curve(c, ambient, tube_type, history_cold_r20=hist)
+        except ValueError as e:
+            sections[sec] = {"warnings": [f"not analysed: {e}"],
+                             "analysis_version": ANALYSIS_VERSION}
+    out = {"analysis_version": ANALYSIS_VERSION, "sections": sections,
+           "section_imbalance": None}
+    if raw.ambient_c is None:
+        out["warnings"] = ["no room temperature recorded: 20 C assumed"]
+    a, b = sections.get("A", {}), sections.get("B", {})
+    ra, rb = a.get("hot_resistance_ohm"), b.get("hot_resistance_ohm")
+    if ra and rb:
+        out["section_imbalance"] = _sig(abs(ra - rb) / (0.5 * (ra + rb)))
+    return out

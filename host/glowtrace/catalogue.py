@@ -1,0 +1,140 @@
+"""The tube catalogue: heater ratings per type, with aliases.
+
+Built-in data: data/tubes.toml (values typed from memory of data sheets; the
+file says so). Users add or correct types in their own TOML file of the same
+form: $GLOWTRACE_TUBES, else ~/.config/glowtrace/tubes.toml."""
+
+import difflib
+import os
+import tomllib
+from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
+
+from .errors import GlowtraceError
+
+BUILTIN = Path(__file__).resolve().parent / "data" / "tubes.toml"
+
+
+class UnknownType(GlowtraceError):
+    pass
+
+
+@dataclass(frozen=True)
+class Rating:
+    volts: float
+    amps: float
+
+    @property
+    def watts(self) -> float:
+        return self.volts * self.amps
+
+
+@dataclass(frozen=True)
+class TubeType:
+    name: str
+    aliases: tuple = ()
+    base: str | None = None
+    heater: Rating | None = None       # single heater
+    series: Rating | None = None       # centre-tapped, halves in series
+    parallel: Rating | None = None     # centre-tapped, halves in parallel
+    heater_pins: tuple = ()
+    centre_tap_pin: int | None = None
+    controlled_warmup_s: float | None = None
+    filament: bool = False
+    tungsten_k: float = 1.0
+    source: str = ""
+
+    @property
+    def centre_tapped(self) -> bool:
+        return self.parallel is not None
+
+    def section_rating(self) -> Rating:
+        """Rating of what one tester section switches: half of a
+        centre-tapped heater at its parallel voltage, else the whole heater."""
+        if self.parallel is not None:
+            return Rating(self.parallel.volts, self.parallel.amps / 2)
+        return self.heater
+
+
+def _rating(d, where: str) -> Rating | None:
+    if d is None:
+        return None
+    try:
+        r = Rating(float(d["volts"]), float(d["amps"]))
+    except (KeyError, TypeError, ValueError):
+        raise GlowtraceError(f"{where}: a rating needs numeric volts and amps") from None
+    if r.volts <= 0 or r.amps <= 0:
+        raise GlowtraceError(f"{where}: volts and amps must be positive")
+    return r
+
+
+def _parse(name: str, d: dict, origin: str) -> TubeType:
+    where = f"{origin}, type {name}"
+    t = TubeType(
+        name=name, aliases=tuple(d.get("aliases", ())), base=d.get("base"),
+        heater=_rating(d.get("heater"), where), series=_rating(d.get("series"), where),
+        parallel=_rating(d.get("parallel"), where),
+        heater_pins=tuple(d.get("heater_pins", ())), centre_tap_pin=d.get("centre_tap_pin"),
+        controlled_warmup_s=d.get("controlled_warmup_s"), filament=bool(d.get("filament")),
+        tungsten_k=float(d.get("tungsten_k", 1.0)), source=d.get("source", origin))
+    if (t.heater is None) == (t.parallel is None):
+        raise GlowtraceError(f"{where}: give either heater, or series and parallel")
+    if (t.series is None) != (t.parallel is None):
+        raise GlowtraceError(f"{where}: series and parallel go together")
+    if not 0.3 <= t.tungsten_k <= 1.2:
+        raise GlowtraceError(f"{where}: tungsten_k must be between 0.3 and 1.2")
+    return t
+
+
+class Catalogue:
+    def __init__(self, types: dict):
+        self.types = types
+        self.index = {}
+        for t in types.values():
+            for n in (t.name, *t.aliases):
+                self.index[n.upper()] = t.name
+
+    @classmethod
+    def from_files(cls, files) -> "Catalogue":
+        types = {}
+        for f in files:
+            try:
+                data = tomllib.loads(Path(f).read_text())
+            except (OSError, tomllib.TOMLDecodeError) as e:
+                raise GlowtraceError(f"cannot read tube catalogue {f}: {e}") from None
+            for name, d in data.get("types", {}).items():
+                types[str(name)] = _parse(str(name), d, str(f))
+        return cls(types)
+
+    def get(self, name: str) -> TubeType:
+        key = self.index.get(name.strip().upper())
+        if key is None:
+            near = difflib.get_close_matches(name.upper(), list(self.index), n=3)
+            hint = f" (did you mean {', '.join(near)}?)" if near else ""
+            raise UnknownType(f"unknown tube type {name!r}{hint}; `glowtrace types` lists "
+                              "them, and you can add your own (see README)")
+        return self.types[key]
+
+    def names(self) -> list[str]:
+        return sorted(self.types)
+
+
+def user_file() -> Path:
+    env = os.environ.get("GLOWTRACE_TUBES")
+    if env:
+        return Path(env)
+    base = os.environ.get("XDG_CONFIG_HOME") or Path.home() / ".config"
+    return Path(base) / "glowtrace" / "tubes.toml"
+
+
+@lru_cache(maxsize=4)
+def _load(user: str | None) -> Catalogue:
+    files = [BUILTIN] + ([Path(user)] if user else [])
+    return Catalogue.from_files(files)
+
+
+def load() -> Catalogue:
+    """The built-in catalogue with the user's own types merged over it."""
+    u = user_file()
+    return _load(str(u) if u.exists() else None)

@@ -1,0 +1,1 @@
+"""Physics of heater wire: tungsten's resistance against temperature."""
