@@ -200,7 +200,9 @@ class SimBoard:
                 elif name == "v":
                     v = self.v_node / self.v_per_v
                 else:
-                    v = 0.5 * (self.sections[0].light() * (self.mask & 1)
+                    # photodiode amplifier: 0.2 V for a section glowing at its
+                    # settled level, so a tenfold flash still fits the range
+                    v = 0.2 * (self.sections[0].light() * (self.mask & 1)
                                + self.sections[1].light() * ((self.mask >> 1) & 1))
                 s = self._code_sum(c, v, oversample)
                 buf[base + c] = s
