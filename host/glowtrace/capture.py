@@ -34,6 +34,7 @@ class RawCapture:
     link: dict = field(default_factory=dict)
     started_at: str = field(default_factory=utc_now_iso)
     uuid: str = field(default_factory=lambda: str(uuidlib.uuid4()))
+    analysis: dict | None = None   # filled in after storing; kept in its own table
 
     @property
     def complete(self) -> bool:

@@ -109,11 +109,47 @@ def _progress_bar(max_s: float):
     return bar, update
 
 
+FIGURE_LABELS = {
+    "cold_resistance_20c_ohm": ("cold resistance at 20 C", "ohm", 4),
+    "hot_current_a": ("hot current", "A", 4),
+    "inrush_ratio": ("inrush / hot current", "x", 3),
+    "warmup_90_s": ("warm-up to 90 %", "s", 3),
+    "settle_1pct_s": ("settled within 1 %", "s", 3),
+    "flash_index": ("flash index", "", 3),
+    "light_overshoot": ("light peak / settled", "x", 3),
+    "cold_start_ok": ("cold start", "", 0),
+}
+
+
+def _fmt(v, digits: int) -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, bool):
+        return "yes" if v else "NO"
+    if isinstance(v, float):
+        return f"{v:.{digits}g}" if digits else str(v)
+    return str(v)
+
+
 def _render_summary(s: dict) -> None:
     t = Table(show_header=False, box=None)
     for k, v in s.items():
-        t.add_row(k, str(v))
+        if k not in ("analysis", "warnings"):
+            t.add_row(k, str(v))
     out.print(t)
+    analysis = s.get("analysis") or {}
+    if analysis:
+        secs = list(analysis)
+        t = Table("figure", *[f"section {x}" for x in secs], "unit", title="analysis")
+        for key, (label, unit, digits) in FIGURE_LABELS.items():
+            if any(key in analysis[x] for x in secs):
+                t.add_row(label, *[_fmt(analysis[x].get(key), digits) for x in secs], unit)
+        out.print(t)
+        for x in secs:
+            for w in analysis[x].get("warnings", []):
+                err.print(f"[yellow]section {x}: {w}[/]")
+    for w in s.get("warnings", []):
+        err.print(f"[yellow]{w}[/]")
 
 
 def cmd_capture(args) -> int:
@@ -121,6 +157,9 @@ def cmd_capture(args) -> int:
     from .ports import find_tester
     from .procedure import UserInterrupt, run_capture
     from .store import Store
+    if args.type:
+        from . import catalogue
+        args.type = catalogue.load().get(args.type).name  # unknown type: stop before switching on
     port = args.port or find_tester()
     params = {"range": args.range, "max_s": args.max_s,
               "settle_band": args.settle_band, "settle_hold_s": args.settle_hold_s}
@@ -176,14 +215,132 @@ def cmd_list(args) -> int:
 
 
 def cmd_show(args) -> int:
+    from .analysis.curve import from_capture
     from .convert import summary
     from .store import Store
     with Store(_db(args), create=False) as store:
         raw = store.load_capture(args.uuid)
+        raw.analysis = store.analysis(raw.uuid)
     s = summary(raw)
     s.update(board=raw.hello.get("board"), firmware=raw.hello.get("firmware"),
              calibration=raw.hello.get("calibration"), params=raw.params, link=raw.link)
+    if args.json:
+        s["analysis"] = raw.analysis
     _emit(args, s, _render_summary)
+    if args.plot and raw.blocks:
+        from . import plots
+        for sec, c in from_capture(raw).items():
+            path = _plot_path(args.plot, sec, len(raw.section) > 1)
+            secs = (raw.analysis or {}).get("sections", {})
+            plots.figure(c, secs.get(sec, {}), path, f"{raw.tube} section {sec}")
+            err.print(f"wrote {path}")
+    return 0
+
+
+def _plot_path(path: str, section: str, several: bool) -> Path:
+    p = Path(path)
+    return p.with_name(f"{p.stem}-{section}{p.suffix}") if several else p
+
+
+# analyze / reanalyze / types --------------------------------------------------
+def cmd_analyze(args) -> int:
+    from . import catalogue, plots
+    from .analysis.analyze import analyze_curve
+    from .csvio import read_curve
+    curve, file_warnings = read_curve(args.file)
+    tube_type = catalogue.load().get(args.type) if args.type else None
+    if (args.rated_volts is None) != (args.rated_amps is None):
+        raise GlowtraceError("give both --rated-volts and --rated-amps, or --type")
+    if tube_type and args.rated_volts:
+        raise GlowtraceError("give either --type or --rated-volts/--rated-amps, not both")
+    for x in (args.rated_volts, args.rated_amps):
+        if x is not None and x <= 0:
+            raise GlowtraceError("rated volts and amps must be positive")
+    ambient = args.ambient_c
+    notes = list(file_warnings)
+    if ambient is None:
+        ambient = 20.0
+        notes.append("no --ambient-c given: 20 C assumed for the cold resistance")
+    elif not -40 <= ambient <= 80:
+        raise GlowtraceError("--ambient-c must be a room temperature in C (-40..80)")
+    try:
+        result = analyze_curve(curve, ambient, tube_type, args.rated_volts, args.rated_amps,
+                               fit_model=not args.no_fit)
+    except ValueError as e:
+        raise GlowtraceError(f"{args.file}: {e}") from None
+    result["warnings"] = notes + result["warnings"]
+    if tube_type:
+        result["type"] = tube_type.name
+    if args.plot:
+        plots.figure(curve, result, args.plot, Path(args.file).name)
+
+    def render(r):
+        t = Table("figure", "value", title=f"{Path(args.file).name}"
+                  + (f" ({tube_type.name})" if tube_type else ""))
+        for k, v in r.items():
+            if k not in ("warnings", "thermal_model"):
+                t.add_row(k, _fmt(v, 5))
+        out.print(t)
+        for w in r["warnings"]:
+            err.print(f"[yellow]{w}[/]")
+        print(plots.terminal_plot(curve, min(out.width, 100), 18, Path(args.file).name))
+    _emit(args, result, render)
+    if args.plot:
+        err.print(f"wrote {args.plot}")
+    return 0
+
+
+def cmd_reanalyze(args) -> int:
+    from .analysis import ANALYSIS_VERSION
+    from .analysis.runner import analyze_stored, reanalyze
+    from .store import Store
+    with Store(_db(args), create=False) as store:
+        if args.uuid:
+            done = [store.find_uuid(u) for u in args.uuid]
+            for u in done:
+                analyze_stored(store, u)
+        else:
+            bar = Progress(TextColumn("analysing"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
+                           console=err, transient=True)
+            with bar:
+                task = bar.add_task("", total=None)
+                done = reanalyze(store, args.force,
+                                 lambda n, total: bar.update(task, completed=n, total=total))
+    res = {"analysis_version": ANALYSIS_VERSION, "analysed": len(done), "captures": done}
+    _emit(args, res, lambda r: out.print(
+        f"Analysed {r['analysed']} capture(s) with analysis version {r['analysis_version']}."))
+    return 0
+
+
+def cmd_types(args) -> int:
+    from . import catalogue
+    cat = catalogue.load()
+    rows = []
+    for name in cat.names():
+        t = cat.get(name)
+        sec = t.section_rating()
+        rows.append({"type": t.name, "aliases": list(t.aliases), "base": t.base,
+                     "series": [t.series.volts, t.series.amps] if t.series else None,
+                     "parallel": [t.parallel.volts, t.parallel.amps] if t.parallel else None,
+                     "heater": [t.heater.volts, t.heater.amps] if t.heater else None,
+                     "section_volts": sec.volts, "section_amps": sec.amps,
+                     "controlled_warmup_s": t.controlled_warmup_s, "filament": t.filament,
+                     "source": t.source})
+
+    def render(rows):
+        t = Table("type", "also", "base", "heater", "per section", "warm-up", "source")
+        for r in rows:
+            if r["heater"]:
+                h = f"{r['heater'][0]:g} V {r['heater'][1]:g} A"
+            else:
+                h = (f"{r['series'][0]:g} V {r['series'][1]:g} A / "
+                     f"{r['parallel'][0]:g} V {r['parallel'][1]:g} A")
+            t.add_row(r["type"], ", ".join(r["aliases"]), r["base"] or "", h,
+                      f"{r['section_volts']:g} V {r['section_amps']:g} A",
+                      f"{r['controlled_warmup_s']:g} s" if r["controlled_warmup_s"] else "",
+                      r["source"])
+        out.print(t)
+    _emit(args, rows, render)
     return 0
 
 
@@ -203,15 +360,17 @@ def cmd_demo(args) -> int:
     elapsed = time.monotonic() - t0
 
     def render(rows):
-        t = Table("tube", "type", "customer", "sect.", "end", "peak A", "hot A",
-                  "supply V", "glow peak", "kB", title=f"Stored in {db}")
+        t = Table("tube", "type", "customer", "sect.", "peak A", "hot A", "inrush",
+                  "warm-up 90 %", "flash index", "kB", title=f"Stored in {db}")
         for r in rows:
-            glow = r.get("glow_peak_over_settled")
             for sec in r["section"]:
+                a = r.get("analysis", {}).get(sec, {})
+                flash = a.get("flash_index")
                 t.add_row(r["tube"], r["type"], r["customer"].split(",")[0], sec,
-                          r["end_reason"], f"{r[f'peak_a_{sec}']:.3f}",
-                          _num(r[f"final_a_{sec}"], 3), f"{r['supply_v']:.2f}",
-                          f"{glow:.2f}x" if glow else "-",
+                          f"{r[f'peak_a_{sec}']:.3f}", _num(r[f"final_a_{sec}"], 3),
+                          _fmt(a.get("inrush_ratio"), 3) + "x",
+                          _fmt(a.get("warmup_90_s"), 3) + " s",
+                          ("[bold red]" if flash and flash > 0.02 else "") + _fmt(flash, 2),
                           f"{r['stored_bytes'] / 1000:.1f}")
         out.print(t)
         out.print(f"{len(rows)} captures in {elapsed:.1f} s. Try: glowtrace list --db {db}")
@@ -285,7 +444,30 @@ def build_parser() -> argparse.ArgumentParser:
 
     s = sub.add_parser("show", parents=[common], help="show one stored capture")
     s.add_argument("uuid", help="capture UUID (a unique prefix will do)")
+    s.add_argument("--plot", metavar="FILE.png", help="write the curve as a figure")
     s.set_defaults(func=cmd_show)
+
+    s = sub.add_parser("analyze", parents=[common],
+                       help="measure a start-up curve from a CSV file (any instrument)")
+    s.add_argument("file", help="CSV with columns time_s,volts,amps[,light]; # comments")
+    s.add_argument("--ambient-c", type=float, help="room temperature of the test, C")
+    s.add_argument("--type", help="tube type from the catalogue (sets the rating)")
+    s.add_argument("--rated-volts", type=float, help="rated heater volts (without --type)")
+    s.add_argument("--rated-amps", type=float, help="rated heater amps (without --type)")
+    s.add_argument("--plot", metavar="FILE.png", help="also write a matplotlib figure")
+    s.add_argument("--no-fit", action="store_true",
+                   help="model-free figures only (no thermal model, no predictions)")
+    s.set_defaults(func=cmd_analyze)
+
+    s = sub.add_parser("reanalyze", parents=[common],
+                       help="re-run the current analysis on stored captures")
+    s.add_argument("uuid", nargs="*", help="only these captures (default: every one "
+                                           "without the current analysis)")
+    s.add_argument("--force", action="store_true", help="all captures, even if current")
+    s.set_defaults(func=cmd_reanalyze)
+
+    s = sub.add_parser("types", parents=[common], help="list the tube catalogue")
+    s.set_defaults(func=cmd_types)
 
     s = sub.add_parser("demo", parents=[common],
                        help="capture an invented shop's tubes on the simulated tester")

@@ -44,8 +44,14 @@ def to_physical(raw: RawCapture) -> Curve:
     return Curve(t_us / 1e6, amps, volts, light)
 
 
+KEY_FIGURES = ("cold_resistance_20c_ohm", "hot_current_a", "inrush_ratio", "warmup_90_s",
+               "settle_1pct_s", "flash_index", "light_overshoot", "cold_start_ok",
+               "warnings")
+
+
 def summary(raw: RawCapture) -> dict:
-    """A short factual summary of a stored capture (not the analysis)."""
+    """A short summary of a capture: raw facts, then the analysis's key
+    figures per section when it has been analysed."""
     out = {"uuid": raw.uuid, "tube": raw.tube, "section": raw.section,
            "started_at": raw.started_at, "complete": raw.complete,
            "incomplete_reason": raw.incomplete_reason, "end_reason": raw.end_reason,
@@ -72,4 +78,12 @@ def summary(raw: RawCapture) -> dict:
             settled = float(lon[curve.t_s[on] >= curve.t_s[on][-1] - 1.0].mean())
             out["glow_peak_over_settled"] = (round(float(lon.max()) / settled, 2)
                                              if settled > 0 else None)
+    if raw.analysis is not None:
+        secs = raw.analysis.get("sections", {})
+        out["analysis"] = {sec: {k: m.get(k) for k in KEY_FIGURES if k in m}
+                           for sec, m in secs.items()}
+        if raw.analysis.get("section_imbalance") is not None:
+            out["section_imbalance"] = raw.analysis["section_imbalance"]
+        if raw.analysis.get("warnings"):
+            out["warnings"] = raw.analysis["warnings"]
     return out

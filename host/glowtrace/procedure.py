@@ -1,10 +1,13 @@
-"""The capture procedure: open the port, identify, capture, store, and leave
-the heater off whatever happens (Ctrl-C, a dropped link, a reset board).
+"""The capture procedure: open the port, identify, capture, store, analyse,
+and leave the heater off whatever happens (Ctrl-C, a dropped link, a reset
+board).
 
 A capture that cannot be whole is still stored, marked incomplete with its
 reason: nothing that arrived is thrown away."""
 
+from .analysis.runner import analyze_stored
 from .capture import RawCapture
+from .errors import GlowtraceError
 from .link import Link
 from .store import Store
 from .tester import CaptureInterrupted, Tester
@@ -34,6 +37,11 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
             raw = e.raw
             raw.incomplete_reason = e.reason
         store.save_capture(raw, tube_type=tube_type, notes=notes)
+        try:
+            raw.analysis = analyze_stored(store, raw.uuid)
+        except (GlowtraceError, ValueError) as e:
+            # the raw capture is safe; `glowtrace reanalyze` can try again
+            raw.analysis = {"warnings": [f"analysis failed: {e}"]}
         if raw.incomplete_reason == "interrupted by the user":
             stop = UserInterrupt(raw)
             stop.off_confirmed = tester.ensure_off()

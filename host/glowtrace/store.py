@@ -37,9 +37,18 @@ def _m1_initial(db: sqlite_utils.Database) -> None:
     }, pk="capture_uuid", foreign_keys=[("capture_uuid", "captures", "uuid")])
 
 
+def _m2_analyses(db: sqlite_utils.Database) -> None:
+    # one row per capture and analysis version: re-running a newer analysis
+    # adds a row, older results stay for comparison
+    db["analyses"].create({"capture_uuid": str, "version": str, "created_at": str,
+                           "result": str}, pk=("capture_uuid", "version"),
+                          foreign_keys=[("capture_uuid", "captures", "uuid")])
+
+
 # (version, name, function). Append only: never edit a released migration.
 MIGRATIONS = [
     (1, "initial: tubes, captures, capture_samples", _m1_initial),
+    (2, "analyses of captures, per analysis version", _m2_analyses),
 ]
 LATEST = MIGRATIONS[-1][0]
 
@@ -186,6 +195,55 @@ class Store:
         cur = self.db.execute(sql, args)
         cols = [d[0] for d in cur.description]
         return [dict(zip(cols, r)) for r in cur.fetchall()]
+
+    # analyses ------------------------------------------------------------
+    def save_analysis(self, uuid: str, result: dict) -> None:
+        row = {"capture_uuid": uuid, "version": result["analysis_version"],
+               "created_at": _now(), "result": json.dumps(result)}
+        try:
+            with self.transaction() as conn:
+                conn.execute("DELETE FROM analyses WHERE capture_uuid = ? AND version = ?",
+                             [uuid, row["version"]])
+                _insert(conn, "analyses", row)
+        except sqlite3.DatabaseError as e:
+            raise self._error(f"analysis of {uuid} not stored in", e) from None
+
+    def analysis(self, uuid: str, version: str | None = None) -> dict | None:
+        """The analysis of a capture: of the given version, else the newest."""
+        sql = "SELECT result FROM analyses WHERE capture_uuid = ?"
+        args = [uuid]
+        if version:
+            sql += " AND version = ?"
+            args.append(version)
+        sql += " ORDER BY created_at DESC, version DESC LIMIT 1"
+        row = self.db.execute(sql, args).fetchone()
+        return json.loads(row[0]) if row else None
+
+    def uuids_needing_analysis(self, version: str, force: bool = False) -> list[str]:
+        sql = "SELECT uuid FROM captures"
+        if not force:
+            sql += (" WHERE uuid NOT IN (SELECT capture_uuid FROM analyses "
+                    "WHERE version = ?)")
+        sql += " ORDER BY started_at, uuid"
+        return [r[0] for r in self.db.execute(sql, [] if force else [version]).fetchall()]
+
+    def history_cold_r20(self, tube: str, section: str, before: str) -> float | None:
+        """Median cold resistance at 20 C of this tube section's earlier cold
+        starts (newest analysis of each), or None without history."""
+        rows = self.db.execute(
+            """SELECT a.result FROM captures c JOIN analyses a ON a.capture_uuid = c.uuid
+               WHERE c.tube = ? AND instr(c.section, ?) > 0 AND c.started_at < ?
+               AND c.complete = 1 ORDER BY c.started_at""", [tube, section, before]).fetchall()
+        vals = []
+        for (res,) in rows:
+            m = json.loads(res).get("sections", {}).get(section, {})
+            if m.get("cold_start_ok") and m.get("cold_resistance_20c_ohm"):
+                vals.append(m["cold_resistance_20c_ohm"])
+        if not vals:
+            return None
+        vals.sort()
+        mid = len(vals) // 2
+        return vals[mid] if len(vals) % 2 else 0.5 * (vals[mid - 1] + vals[mid])
 
     def tube(self, label: str) -> dict | None:
         rows = list(self.db["tubes"].rows_where("label = ?", [label]))
