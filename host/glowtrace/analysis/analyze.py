@@ -29,10 +29,11 @@ def _sig(x, digits=6):
     return x
 
 
-def predict(model: thermal.ThermalModel, rated_v: float, rated_a: float) -> dict:
+def predict(model: thermal.ThermalModel, rated_v: float, rated_a: float,
+            t_end: float | None = None) -> dict:
     """What the fitted heater does under standard conditions."""
-    # long enough to settle: many sleeve time constants
-    t_end = min(600.0, max(30.0, 25.0 * model.tau_s + 10.0 * model.tau_w))
+    if t_end is None:  # long enough to settle: many sleeve time constants
+        t_end = min(600.0, max(30.0, 25.0 * model.tau_s + 10.0 * model.tau_w))
     t, r, _, _ = model.in_circuit(rated_v, 0.0, t_end=t_end, n=300)
     warm90 = first_crossing(t, r, r[0] + 0.9 * (r[-1] - r[0]))
     # series-string test circuit: 4 x rated volts through 3 x rated V / rated A;
