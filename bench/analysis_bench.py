@@ -1,0 +1,111 @@
+"""Analysis benchmark (not a test):
+    .venv/bin/python bench/analysis_bench.py [--runs N]
+Analyses a ~20k-sample start-up curve (a 100 s simulated tester capture of a
+12AX7 section; one even heater, one that flashes) with every metric and the
+model fit, and prints the median time next to a straightforward baseline:
+the same model fitted by least_squares with solve_ivp integrating it over
+every sample, timed in the same run, and the ratio of the two."""
+
+import argparse
+import statistics
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+from scipy.integrate import solve_ivp
+from scipy.optimize import least_squares
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "host"))
+sys.path.insert(0, str(ROOT / "tests"))
+
+from glowtrace import catalogue  # noqa: E402
+from glowtrace.analysis.analyze import analyze_curve  # noqa: E402
+from glowtrace.analysis.curve import from_capture  # noqa: E402
+from glowtrace.analysis.thermal import ThermalModel  # noqa: E402
+from glowtrace.physics.tungsten import HeaterWire  # noqa: E402
+from simhelp import sim_tester  # noqa: E402
+
+
+def capture_curve(**sim):
+    with sim_tester(**sim) as t:
+        raw = t.capture("B", "A", {"max_s": 100, "settle_band": 1e-5})
+    return from_capture(raw)["A"], raw.ambient_c
+
+
+def baseline_fit(c, ambient_c, m):
+    """least_squares over (r_hot, dt_ws, tau_w, tau_s); each evaluation
+    integrates the two-node model with solve_ivp, driven by the measured
+    current interpolated between samples, and compares at every sample."""
+    on = c.t > 0
+    t, i = c.t[on], c.i[on]
+    r_meas = c.v[on] / i
+    wire = HeaterWire(1.0)
+    ta = ambient_c + 273.15
+
+    def residual(x):
+        model = ThermalModel(r20=m["cold_resistance_20c_ohm"], k=1.0, t_amb_k=ta,
+                             p_hot=m["hot_power_w"] * m["hot_resistance_ohm"] / np.exp(x[0]),
+                             r_hot=np.exp(x[0]), dt_ws=np.exp(x[1]), tau_w=np.exp(x[2]),
+                             tau_s=np.exp(x[3]))
+        _, g, k_s, c_w, c_s, _, _, _ = model.constants()
+
+        def rhs(tt, y):
+            ii = np.interp(tt, t, i)
+            return [(ii * ii * model.r20 * wire.ratio(y[0]) - g * (y[0] - y[1])) / c_w,
+                    (g * (y[0] - y[1]) - k_s * (y[1] ** 4 - ta ** 4)) / c_s]
+        sol = solve_ivp(rhs, (0, t[-1]), [ta, ta], method="LSODA", t_eval=t, rtol=1e-7,
+                        atol=1e-4)
+        if not sol.success or sol.y.shape[1] != len(t):
+            return np.full(len(t), 1e3)
+        return model.r20 * wire.ratio(sol.y[0]) - r_meas
+    x0 = np.log([m["hot_resistance_ohm"], 150.0, 0.5, 3.0])
+    # finite-difference steps well above the integrator's tolerance
+    return least_squares(residual, x0, xtol=1e-4, ftol=1e-6, max_nfev=60, diff_step=1e-3)
+
+
+def main():
+    ap = argparse.ArgumentParser(description="analysis benchmark")
+    ap.add_argument("--runs", type=int, default=7)
+    args = ap.parse_args()
+    ax7 = catalogue.load().get("12AX7")
+    cases = {"even heater": capture_curve(tube="12AX7", seed=2),
+             "flashing heater": capture_curve(tube="12AX7", flash_a=0.1, seed=3)}
+    ours = {}
+    for name, (c, amb) in cases.items():
+        times = []
+        for _ in range(args.runs):
+            t0 = time.perf_counter()
+            m = analyze_curve(c, amb, ax7)
+            times.append(time.perf_counter() - t0)
+        ours[name] = (statistics.median(times), m)
+        print(f"{name}: {len(c.t)} samples; glowtrace analysis (all metrics, fit, "
+              f"predictions): median {1000 * statistics.median(times):.1f} ms over "
+              f"{args.runs} runs; flash index {m['flash_index']}, "
+              f"fit rms {m['thermal_model']['fit_rms']:.2f} x noise")
+    c, amb = cases["even heater"]
+    m = ours["even heater"][1]
+    t0 = time.perf_counter()
+    res = baseline_fit(c, amb, m)
+    base = time.perf_counter() - t0
+    fit_only = []
+    from glowtrace.analysis import thermal
+    on = c.t > 0
+    b = thermal.bin_curve(c.t[on], c.i[on], c.v[on] / c.i[on], n_bins=60)
+    for _ in range(args.runs):
+        t1 = time.perf_counter()
+        thermal.fit(b, m["cold_resistance_20c_ohm"], 1.0, amb + 273.15,
+                    m["hot_resistance_ohm"], m["hot_power_w"] / m["hot_current_a"], flash=False)
+        fit_only.append(time.perf_counter() - t1)
+    print(f"baseline (solve_ivp inside least_squares, even heater model only): "
+          f"{base:.2f} s, {res.nfev} evaluations; tau_s {np.exp(res.x[3]):.3f} s vs "
+          f"ours {m['thermal_model']['tau_s']:.3f} s")
+    print(f"ratio, same fit: baseline / glowtrace fit = "
+          f"{base / statistics.median(fit_only):.0f}x "
+          f"(glowtrace fit alone {1000 * statistics.median(fit_only):.1f} ms); "
+          f"baseline / whole glowtrace analysis = {base / ours['even heater'][0]:.0f}x")
+
+
+if __name__ == "__main__":
+    main()
