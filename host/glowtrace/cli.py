@@ -109,16 +109,35 @@ def _progress_bar(max_s: float):
     return bar, update
 
 
-FIGURE_LABELS = {
-    "cold_resistance_20c_ohm": ("cold resistance at 20 C", "ohm", 4),
-    "hot_current_a": ("hot current", "A", 4),
-    "inrush_ratio": ("inrush / hot current", "x", 3),
-    "warmup_90_s": ("warm-up to 90 %", "s", 3),
-    "settle_1pct_s": ("settled within 1 %", "s", 3),
-    "flash_index": ("flash index", "", 3),
-    "light_overshoot": ("light peak / settled", "x", 3),
-    "cold_start_ok": ("cold start", "", 0),
+ALL_LABELS = {
+    "peak_current_a": ("peak current", "A"),
+    "cold_resistance_ohm": ("cold resistance, at the test", "ohm"),
+    "cold_resistance_20c_ohm": ("cold resistance at 20 C", "ohm"),
+    "hot_current_a": ("hot current", "A"),
+    "hot_resistance_ohm": ("hot resistance", "ohm"),
+    "hot_power_w": ("hot power", "W"),
+    "hot_cold_ratio": ("hot / cold resistance", "x"),
+    "inrush_ratio": ("inrush: peak / hot current", "x"),
+    "warmup_50_s": ("warm-up to 50 %", "s"),
+    "warmup_90_s": ("warm-up to 90 %", "s"),
+    "settle_1pct_s": ("settled within 1 %", "s"),
+    "cold_start_ok": ("cold start", ""),
+    "flash_index": ("flash index", ""),
+    "light_overshoot": ("light peak / settled", "x"),
+    "rated_peak_current_a": ("peak at rated voltage, stiff supply", "A"),
+    "rated_warmup_90_s": ("warm-up to 90 % at rated voltage", "s"),
+    "series_warmup_s": ("series-string warm-up (to 80 %)", "s"),
+    "rated_volts": ("rated volts (section)", "V"),
+    "rated_amps": ("rated amps (section)", "A"),
+    "ambient_c": ("room temperature", "C"),
+    "analysis_version": ("analysis version", ""),
+    "type": ("type", ""),
 }
+
+# the figures a capture's summary shows, with significant digits
+SUMMARY_FIGURES = {"cold_resistance_20c_ohm": 4, "hot_current_a": 4, "inrush_ratio": 3,
+                   "warmup_90_s": 3, "settle_1pct_s": 3, "flash_index": 3,
+                   "light_overshoot": 3, "cold_start_ok": 0}
 
 
 def _fmt(v, digits: int) -> str:
@@ -141,8 +160,9 @@ def _render_summary(s: dict) -> None:
     if analysis:
         secs = list(analysis)
         t = Table("figure", *[f"section {x}" for x in secs], "unit", title="analysis")
-        for key, (label, unit, digits) in FIGURE_LABELS.items():
+        for key, digits in SUMMARY_FIGURES.items():
             if any(key in analysis[x] for x in secs):
+                label, unit = ALL_LABELS[key]
                 t.add_row(label, *[_fmt(analysis[x].get(key), digits) for x in secs], unit)
         out.print(t)
         for x in secs:
@@ -275,11 +295,12 @@ def cmd_analyze(args) -> int:
         plots.figure(curve, result, args.plot, Path(args.file).name)
 
     def render(r):
-        t = Table("figure", "value", title=f"{Path(args.file).name}"
+        t = Table("figure", "value", "unit", "JSON key", title=f"{Path(args.file).name}"
                   + (f" ({tube_type.name})" if tube_type else ""))
         for k, v in r.items():
             if k not in ("warnings", "thermal_model"):
-                t.add_row(k, _fmt(v, 5))
+                label, unit = ALL_LABELS.get(k, (k, ""))
+                t.add_row(label, _fmt(v, 5), unit, k)
         out.print(t)
         for w in r["warnings"]:
             err.print(f"[yellow]{w}[/]")
