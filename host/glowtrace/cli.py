@@ -8,34 +8,12 @@ import sys
 import time
 from pathlib import Path
 
-from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
-from . import __version__, paths
+from . import __version__, cli_logbook, paths
+from .cli_common import SAFETY_NOTE, _db, _emit, _fmt, _num, err, out
 from .errors import GlowtraceError
-
-out = Console()
-err = Console(stderr=True)
-
-SAFETY_NOTE = ("Heater leads, shunts and the tube get hot; a shorted heater can "
-               "burn a trace. Run the tester from a fused low-voltage supply.")
-
-
-def _db(args) -> Path:
-    return Path(args.db) if args.db else paths.default_db_path()
-
-
-def _num(value, digits: int) -> str:
-    return "-" if value is None else f"{value:.{digits}f}"
-
-
-def _emit(args, data, render) -> None:
-    if args.json:
-        print(json.dumps(data, indent=2, default=str))
-    else:
-        render(data)
-
 
 # ports ---------------------------------------------------------------------
 def cmd_ports(args) -> int:
@@ -138,16 +116,6 @@ ALL_LABELS = {
 SUMMARY_FIGURES = {"cold_resistance_20c_ohm": 4, "hot_current_a": 4, "inrush_ratio": 3,
                    "warmup_90_s": 3, "settle_1pct_s": 3, "flash_index": 3,
                    "light_overshoot": 3, "cold_start_ok": 0}
-
-
-def _fmt(v, digits: int) -> str:
-    if v is None:
-        return "-"
-    if isinstance(v, bool):
-        return "yes" if v else "NO"
-    if isinstance(v, float):
-        return f"{v:.{digits}g}" if digits else str(v)
-    return str(v)
 
 
 def _render_summary(s: dict) -> None:
@@ -489,6 +457,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     s = sub.add_parser("types", parents=[common], help="list the tube catalogue")
     s.set_defaults(func=cmd_types)
+
+    cli_logbook.register(sub, common)
 
     s = sub.add_parser("demo", parents=[common],
                        help="capture an invented shop's tubes on the simulated tester")

@@ -9,11 +9,17 @@ from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
 
+import lzma
+
+import numpy as np
 import sqlite_utils
 
 from . import samples_codec
 from .capture import RawCapture
 from .errors import StoreError
+
+
+IMPORT_ENCODING = "float64-columns-lzma-v1"
 
 
 def _now() -> str:
@@ -45,10 +51,63 @@ def _m2_analyses(db: sqlite_utils.Database) -> None:
                           foreign_keys=[("capture_uuid", "captures", "uuid")])
 
 
+METRIC_COLUMNS = ("cold_resistance_20c_ohm", "hot_current_a", "hot_resistance_ohm",
+                  "inrush_ratio", "warmup_90_s", "settle_1pct_s", "flash_index")
+# warnings that keep a capture out of history scoring (it is still shown)
+SERIOUS = ("open heater", "shorted", "clipped", "too short", "not analysed",
+           "no resistance rise", "not a cold start", "incomplete", "no samples")
+
+
+def _m3_records(db: sqlite_utils.Database) -> None:
+    db["owners"].create({"name": str, "contact": str, "notes": str, "created_at": str},
+                        pk="name")
+    db.execute("ALTER TABLE tubes ADD COLUMN owner TEXT REFERENCES owners(name)")
+    db.execute("ALTER TABLE captures ADD COLUMN source TEXT NOT NULL DEFAULT 'tester'")
+    # one row per capture, section and analysis version: what history scoring
+    # reads, as columns, so a fleet is scored without parsing JSON
+    cols = {"capture_uuid": str, "section": str, "version": str, "tube": str, "at": str,
+            "ambient_c": float, "cold_start_ok": int, "scored": int, "excluded": str}
+    cols.update({c: float for c in METRIC_COLUMNS})
+    db["section_metrics"].create(cols, pk=("capture_uuid", "section", "version"),
+                                 foreign_keys=[("capture_uuid", "captures", "uuid")])
+    db["section_metrics"].create_index(["tube", "section", "version", "at"])
+    db["baselines"].create({"tube": str, "section": str, "captures": str, "set_at": str},
+                           pk=("tube", "section"), foreign_keys=[("tube", "tubes", "label")])
+    rows = db.execute("SELECT a.capture_uuid, a.version, a.result, c.tube, c.started_at, "
+                      "c.complete FROM analyses a JOIN captures c ON c.uuid = a.capture_uuid"
+                      ).fetchall()
+    for uuid, version, result, tube, at, complete in rows:
+        for row in metric_rows(uuid, version, json.loads(result), tube, at, bool(complete)):
+            _insert(db.conn, "section_metrics", row)
+
+
+def metric_rows(uuid: str, version: str, result: dict, tube: str | None, at: str,
+                complete: bool) -> list[dict]:
+    """section_metrics rows of one analysis; `excluded` says why a row is
+    left out of history scoring."""
+    out = []
+    general = " ".join(result.get("warnings", []))
+    for sec, m in result.get("sections", {}).items():
+        why = [w for w in m.get("warnings", []) + ([general] if general else [])
+               if any(s in w for s in SERIOUS)]
+        if not complete:
+            why.append("capture incomplete")
+        if not m.get("cold_start_ok") and not any("cold start" in w for w in why):
+            why.append("not a cold start")
+        row = {"capture_uuid": uuid, "section": sec, "version": version, "tube": tube,
+               "at": at, "ambient_c": m.get("ambient_c"),
+               "cold_start_ok": int(bool(m.get("cold_start_ok"))),
+               "scored": int(not why), "excluded": "; ".join(dict.fromkeys(why)) or None}
+        row.update({c: m.get(c) for c in METRIC_COLUMNS})
+        out.append(row)
+    return out
+
+
 # (version, name, function). Append only: never edit a released migration.
 MIGRATIONS = [
     (1, "initial: tubes, captures, capture_samples", _m1_initial),
     (2, "analyses of captures, per analysis version", _m2_analyses),
+    (3, "owners, capture source, section metrics, baselines", _m3_records),
 ]
 LATEST = MIGRATIONS[-1][0]
 
@@ -158,6 +217,41 @@ class Store:
             raise self._error(f"capture {raw.uuid} not stored in", e) from None
         return raw.uuid
 
+    def save_imported(self, uuid: str, tube: str, section: str, started_at: str,
+                      ambient_c: float, columns: dict, source_name: str) -> str:
+        """A curve recorded by another instrument, kept exactly as read
+        (float64 columns, LZMA): time_s, volts, amps and optionally light."""
+        names = list(columns)
+        data = np.column_stack([np.asarray(columns[n], "<f8") for n in names])
+        row = {"uuid": uuid, "tube": tube, "section": section, "started_at": started_at,
+               "stored_at": _now(), "complete": 1, "incomplete_reason": None,
+               "end_reason": "imported", "trip_cause": None, "board_id": None,
+               "firmware": None, "port": source_name, "ambient_c": ambient_c,
+               "n_sets": len(data), "n_blocks": 0, "params": json.dumps({"section": section}),
+               "hello": json.dumps({"source": source_name}), "phases": "[]",
+               "end_record": "null", "trip_record": "null", "link": "{}", "source": "import"}
+        try:
+            with self.transaction() as conn:
+                _insert(conn, "captures", row)
+                _insert(conn, "capture_samples", {
+                    "capture_uuid": uuid, "encoding": IMPORT_ENCODING,
+                    "channels": json.dumps(names), "n_sets": len(data), "blocks": b"",
+                    "samples": lzma.compress(data.tobytes())})
+        except sqlite3.DatabaseError as e:
+            raise self._error(f"curve {uuid} not stored in", e) from None
+        return uuid
+
+    def capture_source(self, uuid: str) -> str:
+        return self.db.execute("SELECT source FROM captures WHERE uuid = ?", [uuid]).fetchone()[0]
+
+    def load_imported(self, uuid: str) -> tuple[dict, dict]:
+        """(capture row, columns by name) of an imported curve."""
+        c = self.db["captures"].get(uuid)
+        s = self.db["capture_samples"].get(uuid)
+        names = json.loads(s["channels"])
+        data = np.frombuffer(lzma.decompress(s["samples"]), "<f8").reshape(-1, len(names))
+        return c, {n: data[:, k] for k, n in enumerate(names)}
+
     def find_uuid(self, prefix: str) -> str:
         rows = self.db.execute(
             "SELECT uuid FROM captures WHERE uuid LIKE ? ORDER BY uuid LIMIT 2",
@@ -171,6 +265,8 @@ class Store:
     def load_capture(self, uuid: str) -> RawCapture:
         uuid = self.find_uuid(uuid)
         c = self.db["captures"].get(uuid)
+        if c["source"] == "import":
+            raise StoreError(f"capture {uuid} is an imported curve, not a tester capture")
         s = self.db["capture_samples"].get(uuid)
         if s["encoding"] != samples_codec.ENCODING:
             raise StoreError(f"capture {uuid}: unknown sample encoding {s['encoding']}")
@@ -200,11 +296,17 @@ class Store:
     def save_analysis(self, uuid: str, result: dict) -> None:
         row = {"capture_uuid": uuid, "version": result["analysis_version"],
                "created_at": _now(), "result": json.dumps(result)}
+        cap = self.db.execute("SELECT tube, started_at, complete FROM captures WHERE uuid = ?",
+                              [uuid]).fetchone()
         try:
             with self.transaction() as conn:
-                conn.execute("DELETE FROM analyses WHERE capture_uuid = ? AND version = ?",
-                             [uuid, row["version"]])
+                for table in ("analyses", "section_metrics"):
+                    conn.execute(f"DELETE FROM {table} WHERE capture_uuid = ? AND version = ?",
+                                 [uuid, row["version"]])
                 _insert(conn, "analyses", row)
+                for m in metric_rows(uuid, row["version"], result, cap[0], cap[1],
+                                     bool(cap[2])):
+                    _insert(conn, "section_metrics", m)
         except sqlite3.DatabaseError as e:
             raise self._error(f"analysis of {uuid} not stored in", e) from None
 

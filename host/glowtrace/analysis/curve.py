@@ -42,3 +42,13 @@ def from_capture(raw: RawCapture) -> dict:
         out[sec] = Curve(c.t_s, c.volts - i * r_path, i, c.light, clip_a=0.98 * clip,
                          label=f"{raw.tube} {sec}")
     return out
+
+
+def stored_curves(store, uuid: str) -> dict:
+    """Curves per section of any stored capture, tester's or imported."""
+    if store.capture_source(uuid) == "import":
+        row, cols = store.load_imported(uuid)
+        return {row["section"]: Curve(cols["time_s"], cols["volts"], cols["amps"],
+                                      cols.get("light"), label=f"{row['tube']} {row['section']}")}
+    raw = store.load_capture(uuid)
+    return from_capture(raw) if raw.blocks else {}

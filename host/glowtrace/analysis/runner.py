@@ -5,19 +5,27 @@ from .. import catalogue
 from ..errors import GlowtraceError
 from ..store import Store
 from . import ANALYSIS_VERSION
-from .analyze import analyze_capture
+from .analyze import analyze_capture, analyze_curve
+from .curve import Curve
+
+
+def _tube_type(store: Store, label: str | None, notes: list):
+    tube = store.tube(label) if label else None
+    if tube and tube.get("type"):
+        try:
+            return catalogue.load().get(tube["type"])
+        except GlowtraceError as e:
+            notes.append(f"type not in the catalogue, ratings unknown: {e}")
+    return None
 
 
 def analyze_stored(store: Store, uuid: str) -> dict:
     """Analyse one stored capture with its tube's type and history; store it."""
+    if store.capture_source(uuid) == "import":
+        return _analyze_imported(store, uuid)
     raw = store.load_capture(uuid)
-    tube = store.tube(raw.tube) if raw.tube else None
-    tube_type, notes = None, []
-    if tube and tube.get("type"):
-        try:
-            tube_type = catalogue.load().get(tube["type"])
-        except GlowtraceError as e:
-            notes.append(f"type not in the catalogue, ratings unknown: {e}")
+    notes: list[str] = []
+    tube_type = _tube_type(store, raw.tube, notes)
     history = {sec: store.history_cold_r20(raw.tube, sec, raw.started_at)
                for sec in raw.section} if raw.tube else {}
     if not raw.blocks:
@@ -29,6 +37,26 @@ def analyze_stored(store: Store, uuid: str) -> dict:
         notes.append(f"capture incomplete ({raw.incomplete_reason}): figures may be partial")
     if notes:
         result["warnings"] = result.get("warnings", []) + notes
+    store.save_analysis(uuid, result)
+    return result
+
+
+def _analyze_imported(store: Store, uuid: str) -> dict:
+    row, cols = store.load_imported(uuid)
+    notes: list[str] = []
+    tube_type = _tube_type(store, row["tube"], notes)
+    sec = row["section"]
+    curve = Curve(cols["time_s"], cols["volts"], cols["amps"], cols.get("light"),
+                  label=f"{row['tube']} {sec}")
+    hist = store.history_cold_r20(row["tube"], sec, row["started_at"]) if row["tube"] else None
+    try:
+        m = analyze_curve(curve, row["ambient_c"], tube_type, history_cold_r20=hist)
+    except ValueError as e:
+        m = {"warnings": [f"not analysed: {e}"], "analysis_version": ANALYSIS_VERSION}
+    result = {"analysis_version": ANALYSIS_VERSION, "sections": {sec: m},
+              "section_imbalance": None}
+    if notes:
+        result["warnings"] = notes
     store.save_analysis(uuid, result)
     return result
 

@@ -156,10 +156,11 @@ class ThermalModel:
         return out
 
     def in_circuit(self, v_supply: float, r_series: float, t_end: float = 120.0,
-                   n: int = 400, t_first: float = 1e-5):
-        """Switch on from cold behind a supply of v_supply volts and a series
-        resistance. Returns (t, heater resistance, current, heater voltage)."""
-        step, resistance, state = self._stepper()
+                   n: int = 400, t_first: float = 1e-5, t0_k: float | None = None):
+        """Switch on behind a supply of v_supply volts and a series resistance,
+        from cold (or from t0_k kelvin). Returns (t, heater resistance,
+        current, heater voltage)."""
+        step, resistance, state = self._stepper(t0_k)
         t = np.concatenate([[0.0], np.geomspace(t_first, t_end, n)])
         r = np.empty(len(t))
         r[0] = resistance()

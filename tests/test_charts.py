@@ -1,0 +1,65 @@
+"""Control charts and trend statistics against published examples and scipy."""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy import stats
+
+from glowtrace import charts
+
+# Montgomery, Introduction to Statistical Quality Control, tabular CUSUM example
+# (Table 9.1; 30 observations, the first 20 from N(10, 1), the last 10 after a
+# shift to a mean of 11). Values typed from memory of the textbook's table.
+MONTGOMERY = [9.45, 7.99, 9.29, 11.66, 12.16, 10.18, 8.04, 11.46, 9.20, 10.34,
+              9.03, 11.47, 10.51, 9.40, 10.08, 9.37, 10.62, 10.31, 8.52, 10.84,
+              10.90, 9.33, 12.29, 11.50, 10.60, 11.08, 10.38, 11.62, 11.31, 10.52]
+
+# NIST/SEMATECH e-Handbook of Statistical Methods, 6.3.2.4 EWMA control charts:
+# 20 observations, target 50, s = 2.0539, lambda = 0.3 (typed from memory).
+NIST = [52.0, 47.0, 53.0, 49.3, 50.1, 47.0, 51.0, 50.1, 51.2, 50.5,
+        49.6, 47.6, 49.9, 51.3, 47.8, 51.2, 52.6, 52.4, 53.6, 52.1]
+
+
+def test_montgomery_tabular_cusum_signals_at_sample_29():
+    c = charts.cusum(MONTGOMERY, mu0=10.0, k=0.5, h=5.0)
+    assert c.first_signal() == 29          # the textbook's result
+    assert c.upper[28] == pytest.approx(5.28, abs=0.005)
+    assert c.upper[27] == pytest.approx(4.47, abs=0.005)
+    assert c.direction == 1 and c.lower.max() < 5.0
+
+
+def test_nist_ewma_limits_and_no_point_out_of_control():
+    e = charts.ewma(NIST, target=50.0, sigma=2.0539, lam=0.3, L=3.0)
+    assert e.upper == pytest.approx(52.59, abs=0.005)   # "about 52.59"
+    assert e.lower == pytest.approx(47.41, abs=0.005)   # "about 47.41"
+    assert not e.beyond.any()
+    assert e.values[0] == pytest.approx(50.6)
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.floats(-50, 50, allow_nan=False), min_size=3, max_size=40))
+def test_theil_sen_matches_scipy(y):
+    t = np.arange(len(y), dtype=float) * 0.37
+    slope, intercept = charts.theil_sen(t, y)
+    ref = stats.theilslopes(y, t)
+    assert slope == pytest.approx(ref.slope, abs=1e-9)
+    assert intercept == pytest.approx(ref.intercept, abs=1e-9)
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.integers(0, 6), min_size=4, max_size=40))
+def test_mann_kendall_matches_kendalltau(y):
+    y = np.array(y, dtype=float)
+    if np.ptp(y) == 0:
+        return
+    t = np.arange(len(y), dtype=float)
+    mk = charts.mann_kendall(y, t)
+    ref = stats.kendalltau(t, y, method="asymptotic")
+    assert mk.tau == pytest.approx(ref.statistic, abs=1e-12)
+    assert mk.p == pytest.approx(ref.pvalue, rel=1e-9, abs=1e-12)
+
+
+def test_robust_centre_scale():
+    med, sig = charts.robust_centre_scale([1.0, 2.0, 3.0, 4.0, 100.0])
+    assert med == 3.0 and sig == pytest.approx(1.4826)
