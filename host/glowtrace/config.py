@@ -10,7 +10,7 @@ from pathlib import Path
 from .errors import GlowtraceError
 
 DEFAULTS = Path(__file__).resolve().parent / "data" / "scoring.toml"
-METRICS = ("cold_resistance_20c_ohm", "hot_current_a", "inrush_ratio", "warmup_90_s",
+METRICS = ("cold_resistance_20c_ohm", "hot_current_a", "inrush_20c", "warmup_90_s",
            "settle_1pct_s", "flash_index")
 
 

@@ -19,7 +19,7 @@ from .store import Store
 LABELS = {
     "cold_resistance_20c_ohm": ("cold resistance at 20 C", "ohm"),
     "hot_current_a": ("hot current", "A"),
-    "inrush_ratio": ("inrush (peak over hot current)", "x"),
+    "inrush_20c": ("inrush at 20 C (peak over hot current)", "x"),
     "warmup_90_s": ("warm-up to 90 %", "s"),
     "settle_1pct_s": ("settling time (1 %)", "s"),
     "flash_index": ("flash index", ""),
@@ -133,8 +133,8 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
     elif s.drifting:
         why = []
         if s.trend_significant:
-            why.append(f"a steady trend of {fmt(s.trend_per_year)} a year (Mann-Kendall "
-                       f"p = {s.trend_p:.3f})")
+            p = "p < 0.001" if s.trend_p < 0.001 else f"p = {s.trend_p:.3f}"
+            why.append(f"a steady trend of {fmt(s.trend_per_year)} a year (Mann-Kendall {p})")
         if s.cusum_signal or s.ewma_signal:
             why.append("a lasting shift beyond the noise (CUSUM/EWMA)")
         msg = f"{where} has moved {fmt(s.change)} from its baseline: " + " and ".join(why)
@@ -372,7 +372,7 @@ def history(store: Store, label: str, cfg: dict) -> dict:
             caps.append({"uuid": uuid, "at": at, "section": sec, "source": source,
                          "complete": bool(complete), "incomplete_reason": why,
                          "scored": bool(row.get("scored")), "excluded": row.get("excluded"),
-                         **m})
+                         **m, "inrush_20c": row.get("inrush_20c")})
     result["captures"] = caps
     return result
 

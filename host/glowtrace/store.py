@@ -52,7 +52,7 @@ def _m2_analyses(db: sqlite_utils.Database) -> None:
 
 
 METRIC_COLUMNS = ("cold_resistance_20c_ohm", "hot_current_a", "hot_resistance_ohm",
-                  "inrush_ratio", "warmup_90_s", "settle_1pct_s", "flash_index")
+                  "inrush_ratio", "inrush_20c", "warmup_90_s", "settle_1pct_s", "flash_index")
 # warnings that keep a capture out of history scoring (it is still shown)
 SERIOUS = ("open heater", "shorted", "clipped", "too short", "not analysed",
            "no resistance rise", "not a cold start", "incomplete", "no samples")
@@ -99,6 +99,11 @@ def metric_rows(uuid: str, version: str, result: dict, tube: str | None, at: str
                "cold_start_ok": int(bool(m.get("cold_start_ok"))),
                "scored": int(not why), "excluded": "; ".join(dict.fromkeys(why)) or None}
         row.update({c: m.get(c) for c in METRIC_COLUMNS})
+        # the inrush the tube would show at 20 C: room temperature changes the
+        # cold resistance, and with it the inrush, but not the tube
+        if m.get("inrush_ratio") and m.get("cold_resistance_20c_ohm"):
+            row["inrush_20c"] = (m["inrush_ratio"] * m["cold_resistance_ohm"]
+                                 / m["cold_resistance_20c_ohm"])
         out.append(row)
     return out
 
