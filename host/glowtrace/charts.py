@@ -13,6 +13,7 @@
 """
 
 import math
+from collections import Counter
 from dataclasses import dataclass
 
 import numpy as np
@@ -74,17 +75,27 @@ def cusum(x, mu0: float, k: float, h: float) -> Cusum:
     return Cusum(up, lo, h)
 
 
+def median(values) -> float:
+    """Median of a short sequence. A history has tens of points and a fleet
+    millions of such calls: sorting a list beats numpy's per-call overhead."""
+    v = sorted(values)
+    n = len(v)
+    if n == 0:
+        raise ValueError("median of nothing")
+    h = n // 2
+    return float(v[h]) if n % 2 else 0.5 * (v[h - 1] + v[h])
+
+
 def theil_sen(t, y) -> tuple[float, float]:
     """(slope, intercept): the median pairwise slope, and the line through
     (median t, median y) (Conover's estimate, scipy's default)."""
-    t, y = np.asarray(t, float), np.asarray(y, float)
-    i, j = np.triu_indices(len(t), 1)
-    dt = t[j] - t[i]
-    ok = dt != 0
-    if not ok.any():
-        return 0.0, float(np.median(y))
-    slope = float(np.median((y[j] - y[i])[ok] / dt[ok]))
-    return slope, float(np.median(y) - slope * np.median(t))
+    t, y = [float(a) for a in t], [float(b) for b in y]
+    slopes = [(y[j] - y[i]) / (t[j] - t[i]) for i in range(len(t))
+              for j in range(i + 1, len(t)) if t[j] != t[i]]
+    if not slopes:
+        return 0.0, median(y)
+    slope = median(slopes)
+    return slope, median(y) - slope * median(t)
 
 
 @dataclass
@@ -96,26 +107,29 @@ class MannKendall:
 
 
 def mann_kendall(y, t=None) -> MannKendall:
-    """Trend test of y in time order (t breaks ties in order if given)."""
-    y = np.asarray(y, float)
-    n = len(y)
+    """Trend test of y in time order (sorted by t if given)."""
+    y = [float(v) for v in y]
     if t is not None:
-        y = y[np.argsort(np.asarray(t, float), kind="stable")]
-    i, j = np.triu_indices(n, 1)
-    s = int(np.sign(y[j] - y[i]).sum())
-    _, counts = np.unique(y, return_counts=True)
-    ties = counts[counts > 1]
-    var = (n * (n - 1) * (2 * n + 5) - (ties * (ties - 1) * (2 * ties + 5)).sum()) / 18.0
+        order = sorted(range(len(y)), key=lambda k: float(t[k]))
+        y = [y[k] for k in order]
+    n = len(y)
+    s = 0
+    for i in range(n):
+        yi = y[i]
+        for j in range(i + 1, n):
+            d = y[j] - yi
+            s += (d > 0) - (d < 0)
+    ties = [c for c in Counter(y).values() if c > 1]
+    var = (n * (n - 1) * (2 * n + 5) - sum(c * (c - 1) * (2 * c + 5) for c in ties)) / 18.0
     z = s / math.sqrt(var) if var > 0 else 0.0
     p = math.erfc(abs(z) / math.sqrt(2))
     n0 = n * (n - 1) / 2
-    n2 = (ties * (ties - 1) / 2).sum()
+    n2 = sum(c * (c - 1) / 2 for c in ties)
     tau = s / math.sqrt(n0 * (n0 - n2)) if n0 > n2 else 0.0
     return MannKendall(s, z, p, tau)
 
 
 def robust_centre_scale(x) -> tuple[float, float]:
     """Median and the MAD scaled to a normal sigma (x 1.4826)."""
-    x = np.asarray(x, float)
-    med = float(np.median(x))
-    return med, 1.4826 * float(np.median(np.abs(x - med)))
+    med = median(x)
+    return med, 1.4826 * median([abs(v - med) for v in x])

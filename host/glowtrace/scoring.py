@@ -66,9 +66,11 @@ def _bad(direction: str, sign: float) -> bool:
 
 
 def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
-                 base_index: list[int] | None, cfg: dict, section: str) -> MetricScore:
+                 base_index: list[int] | None, cfg: dict, section: str,
+                 years: list[float] | None = None) -> MetricScore:
     """One metric of one tube section; xs are the scored captures' values in
-    time order; base_index the user's baseline captures (positions in xs)."""
+    time order, ats their times (years: the same in years from the first);
+    base_index the user's baseline captures (positions in xs)."""
     ch = cfg["charts"]
     lim = cfg["limits"][metric]
     direction = lim["direction"]
@@ -99,11 +101,11 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
         c = charts.cusum(after, 0.0, ch["cusum_k"], ch["cusum_h"])
         s.cusum_signal = (c.upper[-1] > c.h and _bad(direction, 1)) or (
             c.lower[-1] > c.h and _bad(direction, -1))
-    span = (_parse_at(ats[-1]) - _parse_at(ats[0])).total_seconds()
-    if len(x) >= ch["trend_min"] and span > 0:
-        t = _years(ats)
-        slope, icpt = charts.theil_sen(t, x)
-        mk = charts.mann_kendall(x, t)
+    t = years if years is not None else list(_years(ats))
+    slope = icpt = None
+    if len(x) >= ch["trend_min"] and t[-1] > t[0]:
+        slope, icpt = charts.theil_sen(t, xs)
+        mk = charts.mann_kendall(xs, t)
         s.trend_per_year = slope if absolute else slope / centre
         s.trend_p = mk.p
         moved = abs(slope * t[-1]) > 2 * scale
@@ -119,9 +121,7 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
             s.at_limit = abs(s.latest / centre - 1) >= lim["change"]
     def fmt(v):
         return f"{v:+.3f}" if absolute else f"{100 * v:+.1f} %"
-    if s.trend_significant and not s.at_limit and s.trend_per_year:
-        t = _years(ats)
-        slope, icpt = charts.theil_sen(t, x)
+    if s.trend_significant and not s.at_limit and slope:
         years = (s.limit - (icpt + slope * t[-1])) / slope
         if 0 < years < 50:
             when = _parse_at(ats[-1]) + timedelta(days=365.25 * years)
@@ -160,11 +160,14 @@ def score_section(rows: list[dict], cfg: dict, section: str,
                               f"{rows[-1]['excluded']}")
         return out
     statuses = []
+    yrs = list(_years([r["at"] for r in scored])) if scored else []
     for m in METRICS:
-        pts = [(r["at"], r[m], r["capture_uuid"]) for r in scored if r[m] is not None]
+        pts = [(r["at"], r[m], r["capture_uuid"], y) for r, y in zip(scored, yrs)
+               if r[m] is not None]
         ats, xs, uuids = [p[0] for p in pts], [p[1] for p in pts], [p[2] for p in pts]
+        years = [p[3] for p in pts]
         base_idx = [uuids.index(u) for u in (baseline_uuids or []) if u in uuids] or None
-        s = score_metric(m, ats, xs, n_base, base_idx, cfg, section)
+        s = score_metric(m, ats, xs, n_base, base_idx, cfg, section, years)
         out["metrics"][m] = {k: v for k, v in s.__dict__.items() if k != "reasons"}
         out["reasons"] += s.reasons
         if s.at_limit and s.baseline is not None:
@@ -217,12 +220,16 @@ def load_baselines(store: Store, tube: str | None = None) -> dict:
 
 
 def type_population(store: Store, type_name: str) -> dict:
-    """Latest scored values of every tube section of a type, per metric."""
-    rows = store.db.execute(_ROWS_SQL.format(
-        where="AND s.scored = 1 AND s.tube IN (SELECT label FROM tubes WHERE type = ?)"),
+    """Latest scored values of every tube section of a type, per metric
+    (newest analysis version; SQLite takes the bare columns from the row
+    with max(at))."""
+    cols = ", ".join(METRICS)
+    rows = store.db.execute(
+        f"SELECT tube, section, max(at), {cols} FROM section_metrics "
+        "WHERE scored = 1 AND version = (SELECT max(version) FROM section_metrics) "
+        "AND tube IN (SELECT label FROM tubes WHERE type = ?) GROUP BY tube, section",
         [type_name]).fetchall()
-    return _population(rows, [d[0] for d in store.db.execute(
-        "SELECT * FROM section_metrics LIMIT 0").description])
+    return {m: [r[3 + k] for r in rows if r[3 + k] is not None] for k, m in enumerate(METRICS)}
 
 
 def _population(rows, cols) -> dict:
