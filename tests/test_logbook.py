@@ -244,3 +244,17 @@ def test_migration_from_schema_2_backfills_metrics(tmp_path, monkeypatch):
         assert len(rows) == 1 and rows[0]["scored"] == 1
         assert rows[0]["inrush_20c"] == pytest.approx(6.6 * 6.3 / 6.25)
         assert s.capture_source(raw.uuid) == "tester"
+
+
+def test_capture_refuses_sections_or_types_that_do_not_fit(capsys, tmp_path):
+    from simhelp import sim_url
+    db = str(tmp_path / "c.db")
+    rc, _, err = gt(capsys, "capture", "--port", sim_url(), "--tube", "P-1", "--type", "EL34",
+                    "--section", "AB", "--db", db)
+    assert rc == 1 and "no section B" in err
+    assert gt(capsys, "tube", "add", "P-2", "--type", "6V6", "--db", db)[0] == 0
+    rc, _, err = gt(capsys, "capture", "--port", sim_url(), "--tube", "P-2", "--type", "EL84",
+                    "--section", "A", "--db", db)
+    assert rc == 1 and "recorded as a 6V6" in err
+    with Store(db) as s:
+        assert s.db["captures"].count == 0

@@ -145,9 +145,15 @@ def cmd_capture(args) -> int:
     from .ports import find_tester
     from .procedure import UserInterrupt, run_capture
     from .store import Store
+    from .records import check_capture_target
     if args.type:
         from . import catalogue
         args.type = catalogue.load().get(args.type).name  # unknown type: stop before switching on
+    if Path(_db(args)).exists():  # a known tube: its type and sections must fit
+        with Store(_db(args)) as store:
+            args.type = check_capture_target(store, args.tube, args.type, args.section)
+    else:
+        check_capture_target(None, args.tube, args.type, args.section)
     port = args.port or find_tester()
     params = {"range": args.range, "max_s": args.max_s,
               "settle_band": args.settle_band, "settle_hold_s": args.settle_hold_s}

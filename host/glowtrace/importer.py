@@ -46,7 +46,7 @@ def import_curve(store: Store, path: str, tube: str, type_name: str | None, sect
         raise GlowtraceError(f"no tube {tube!r} yet: give its --type to record it")
     kind = type_name or existing["type"]
     if section not in sections_of(kind):
-        raise GlowtraceError(f"a {kind} has section(s) {', '.join(sections_of(kind))}, "
+        raise GlowtraceError(f"type {kind} has section(s) {', '.join(sections_of(kind))}, "
                              f"not {section}")
     dup = store.db.execute("SELECT uuid FROM captures WHERE tube = ? AND section = ? AND "
                            "started_at = ?", [tube, section, when]).fetchone()

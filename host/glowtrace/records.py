@@ -215,3 +215,21 @@ def delete_tube(store: Store, label: str) -> int:
     except sqlite3.DatabaseError as e:
         raise RecordError(f"tube {label!r} not deleted: {e}") from None
     return len(uuids)
+
+
+def check_capture_target(store: Store | None, label: str, type_name: str | None,
+                         section: str) -> str | None:
+    """Before switching anything on: the tube's type (given or recorded) must
+    agree, and have the sections asked for. Returns the type to use."""
+    _label(label)
+    t = get_tube(store, label) if store is not None else None
+    if t and type_name and t["type"] and t["type"] != type_name:
+        raise RecordError(f"tube {label!r} is recorded as a {t['type']}, not a {type_name}")
+    kind = type_name or (t["type"] if t else None)
+    if kind:
+        have = sections_of(kind)
+        missing = [s for s in section if s not in have]
+        if missing:
+            raise RecordError(f"type {kind} has section(s) {', '.join(have)} only: "
+                              f"there is no section {', '.join(missing)} to switch on")
+    return kind
