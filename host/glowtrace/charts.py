@@ -31,14 +31,13 @@ class Ewma:
 
 
 def ewma(x, target: float, sigma: float, lam: float = 0.3, L: float = 3.0) -> Ewma:
-    x = np.asarray(x, dtype=float)
-    out = np.empty(len(x))
+    out = []
     z = target
-    for k, v in enumerate(x):
-        z = lam * v + (1 - lam) * z
-        out[k] = z
+    for v in x:
+        z = lam * float(v) + (1 - lam) * z
+        out.append(z)
     half = L * sigma * math.sqrt(lam / (2 - lam))
-    return Ewma(out, target + half, target - half)
+    return Ewma(np.array(out), target + half, target - half)
 
 
 @dataclass
@@ -65,14 +64,15 @@ class Cusum:
 
 
 def cusum(x, mu0: float, k: float, h: float) -> Cusum:
-    x = np.asarray(x, dtype=float)
-    up, lo = np.empty(len(x)), np.empty(len(x))
+    up, lo = [], []
     cp = cm = 0.0
-    for i, v in enumerate(x):
+    for v in x:
+        v = float(v)
         cp = max(0.0, v - (mu0 + k) + cp)
         cm = max(0.0, (mu0 - k) - v + cm)
-        up[i], lo[i] = cp, cm
-    return Cusum(up, lo, h)
+        up.append(cp)
+        lo.append(cm)
+    return Cusum(np.array(up), np.array(lo), h)
 
 
 def median(values) -> float:

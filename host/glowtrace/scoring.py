@@ -76,26 +76,26 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
     direction = lim["direction"]
     absolute = metric == "flash_index"
     label, unit = LABELS[metric]
-    x = np.asarray(xs, float)
+    x = [float(v) for v in xs]
     s = MetricScore(metric, len(x))
-    if len(x) == 0:
+    if not x:
         return s
-    s.latest = float(x[-1])
+    s.latest = x[-1]
     idx = base_index if base_index else list(range(min(n_base, len(x))))
     if len(idx) < n_base and not base_index:
         return s
-    centre, spread = charts.robust_centre_scale(x[idx])
+    centre, spread = charts.robust_centre_scale([x[k] for k in idx])
     floor = cfg["noise_floor"][metric] * (1.0 if absolute else abs(centre))
     scale = max(spread, floor)
     s.baseline, s.scale = centre, scale
-    z = (x - centre) / scale
-    s.z_latest = float(z[-1])
-    s.change = float(x[-1] - centre) if absolute else float((x[-1] - centre) / centre)
+    z = [(v - centre) / scale for v in x]
+    s.z_latest = z[-1]
+    s.change = (x[-1] - centre) if absolute else (x[-1] - centre) / centre
     after = z[max(idx) + 1:]
     where = f"section {section}: {label}"
     if len(after):
         e = charts.ewma(z[max(idx):], 0.0, 1.0, ch["ewma_lambda"], ch["ewma_limit"])
-        last = e.values[-1]
+        last = float(e.values[-1])
         s.ewma_signal = (last > e.upper and _bad(direction, 1)) or (
             last < e.lower and _bad(direction, -1))
         c = charts.cusum(after, 0.0, ch["cusum_k"], ch["cusum_h"])
