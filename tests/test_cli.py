@@ -28,10 +28,15 @@ def test_demo_end_to_end(tmp_path):
     # both sections of the dual heater were switched on together in the first
     both = caps[0]
     assert both["peak_a_A"] > 4 * both["final_a_A"] and both["peak_a_B"] > 4 * both["final_a_B"]
-    # and the store holds what the table says
+    # the earlier visits are in the logbook too, and it judges them
     r = run("list", "--db", str(db), "--json")
     rows = json.loads(r.stdout)
-    assert [x["uuid"] for x in rows] == [c["uuid"] for c in caps]
+    assert {c["uuid"] for c in caps} <= {x["uuid"] for x in rows} and len(rows) == 14
+    judged = {t["tube"]: t for t in out["tubes"]}
+    assert judged["KS-0117-V1"]["status"] == "steady"
+    assert judged["KS-0117-V2"]["status"] in ("at limit", "drifting")
+    assert "flash index" in judged["KS-0117-V2"]["reasons"][0]
+    assert judged["KS-0117-V2"]["owner"] == "Orla Venn"
 
 
 def test_capture_list_show_through_the_cli(tmp_path, capsys):

@@ -344,33 +344,40 @@ def cmd_demo(args) -> int:
     from .demo import SHOP, run_demo
     db = Path(args.db) if args.db else paths.default_db_path().with_name("demo.db")
     if not args.json:
-        out.print(f"[bold]{SHOP}[/]: a morning at the bench on the simulated tester "
-                  "(real firmware under micropython).")
+        out.print(f"[bold]{SHOP}[/]: earlier visits, then this morning at the bench, on the "
+                  "simulated tester (real firmware under micropython).")
 
-    def progress(n, total, t):
-        err.print(f"  [{n}/{total}] {t.label} {t.tube_type} section {t.section} "
-                  f"({t.customer})")
+    def progress(n, total, t, when):
+        day = f"visit of {when[:10]}" if when else "today"
+        err.print(f"  [{n}/{total}] {t.label} {t.tube_type} section {t.section}, {day}")
     t0 = time.monotonic()
-    rows = run_demo(db, progress)
+    res = run_demo(db, progress)
     elapsed = time.monotonic() - t0
 
-    def render(rows):
-        t = Table("tube", "type", "customer", "sect.", "peak A", "hot A", "inrush",
-                  "warm-up 90 %", "flash index", "kB", title=f"Stored in {db}")
-        for r in rows:
+    def render(res):
+        t = Table("tube", "type", "owner", "sect.", "peak A", "hot A", "inrush",
+                  "warm-up 90 %", "flash index", "kB", title=f"Today's captures, stored in {db}")
+        for r in res["captures"]:
             for sec in r["section"]:
                 a = r.get("analysis", {}).get(sec, {})
                 flash = a.get("flash_index")
-                t.add_row(r["tube"], r["type"], r["customer"].split(",")[0], sec,
+                t.add_row(r["tube"], r["type"], r["customer"], sec,
                           f"{r[f'peak_a_{sec}']:.3f}", _num(r[f"final_a_{sec}"], 3),
                           _fmt(a.get("inrush_ratio"), 3) + "x",
                           _fmt(a.get("warmup_90_s"), 3) + " s",
                           ("[bold red]" if flash and flash > 0.02 else "") + _fmt(flash, 2),
                           f"{r['stored_bytes'] / 1000:.1f}")
         out.print(t)
-        out.print(f"{len(rows)} captures in {elapsed:.1f} s. Try: glowtrace list --db {db}")
-    _emit(args, {"database": str(db), "captures": rows, "seconds": round(elapsed, 2)},
-          lambda d: render(d["captures"]))
+        t = Table("tube", "owner", "status", "grade", "why", title="The logbook's judgement")
+        for a in res["tubes"]:
+            colour = "green" if a["status"] == "steady" else (
+                "cyan" if a["status"] == "new" else "red")
+            t.add_row(a["tube"], a["owner"] or "", f"[{colour}]{a['status']}[/]",
+                      a["grade"] or "-", a["reasons"][0])
+        out.print(t)
+        out.print(f"{len(res['captures'])} captures today and the earlier visits in "
+                  f"{elapsed:.1f} s. Try: glowtrace history KS-0117-V2 --db {db}")
+    _emit(args, dict(res, database=str(db), seconds=round(elapsed, 2)), render)
     return 0
 
 

@@ -1,68 +1,104 @@
 """`glowtrace demo`: an invented repair shop's morning at the bench, captured
 through the simulated tester (the real firmware under micropython) into a demo
-database. Shop, customers and tube labels are invented for this project."""
+database, with the same tubes' earlier visits laid down first so that the
+logbook has a history to judge. Shop, customers, equipment and tube labels
+are invented for this project."""
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta, timezone
 from pathlib import Path
 from urllib.parse import urlencode
 
+from . import config, records, scoring
 from .convert import summary
 from .procedure import run_capture
 from .store import Store
 
 SHOP = "Kestrel Street Valve Bench (an invented repair shop)"
 
+CUSTOMERS = {
+    "Orla Venn": "practice amplifier, brought in for crackle",
+    "Marek Doyle-Ashby": "hi-fi amplifier, yearly check",
+    "Juniper Hall radio club": "table radio, series-string heaters",
+}
+
 
 @dataclass(frozen=True)
 class DemoTube:
     label: str
     tube_type: str
-    customer: str
+    owner: str
     section: str
     sim: dict
     range: str = "low"
+    # earlier visits: (days ago, simulator settings that differ then)
+    history: list = field(default_factory=list)
 
 
 DEMO_TUBES = [
-    DemoTube("KS-0117-V1", "12AX7", "Orla Venn, practice amplifier", "AB",
-             {"tube": "12AX7", "serial": "0117", "ambient_c": 21.5, "seed": 11}),
-    DemoTube("KS-0117-V2", "12AX7", "Orla Venn, practice amplifier", "A",
+    DemoTube("KS-0117-V1", "12AX7", "Orla Venn", "AB",
+             {"tube": "12AX7", "serial": "0117", "ambient_c": 21.5, "seed": 11},
+             history=[(180, {"ambient_c": 19.0}), (120, {"ambient_c": 24.5}),
+                      (60, {"ambient_c": 20.5})]),
+    DemoTube("KS-0117-V2", "12AX7", "Orla Venn", "A",
              {"tube": "12AX7", "serial": "0117", "ambient_c": 21.6, "seed": 12,
               "flash_b": 0.12, "light": 1}),
-    DemoTube("KS-0117-V2", "12AX7", "Orla Venn, practice amplifier", "B",
+    # section B of V2 flashes, and has been flashing more at every visit
+    DemoTube("KS-0117-V2", "12AX7", "Orla Venn", "B",
              {"tube": "12AX7", "serial": "0117", "ambient_c": 21.6, "seed": 13,
-              "flash_b": 0.12, "light": 1}),
-    DemoTube("KS-0122-V5", "6V6", "Marek Doyle-Ashby, hi-fi amplifier", "A",
+              "flash_b": 0.12, "light": 1},
+             history=[(150, {"flash_b": 0.01}), (120, {"flash_b": 0.03}),
+                      (90, {"flash_b": 0.05}), (60, {"flash_b": 0.07}),
+                      (30, {"flash_b": 0.09})]),
+    DemoTube("KS-0122-V5", "6V6", "Marek Doyle-Ashby", "A",
              {"tube": "6V6", "serial": "0122", "ambient_c": 22.4, "seed": 21}),
-    DemoTube("KS-0122-V7", "5U4GB", "Marek Doyle-Ashby, hi-fi amplifier", "A",
+    DemoTube("KS-0122-V7", "5U4GB", "Marek Doyle-Ashby", "A",
              {"tube": "5U4GB", "serial": "0122", "ambient_c": 22.4, "seed": 22},
              range="high"),
-    DemoTube("KS-0130-V3", "12BA6", "Juniper Hall radio club, table radio", "A",
+    DemoTube("KS-0130-V3", "12BA6", "Juniper Hall radio club", "A",
              {"tube": "12BA6", "serial": "0130", "ambient_c": 19.8, "seed": 31}),
 ]
 
 
-def demo_url(t: DemoTube) -> str:
-    return "glowsim://?" + urlencode(t.sim)
+def demo_url(settings: dict) -> str:
+    return "glowsim://?" + urlencode(settings)
 
 
-def run_demo(db_path: Path, progress=None) -> list[dict]:
-    """Capture every demo tube into a fresh database at db_path; returns one
-    summary per stored capture."""
+def _record(store: Store) -> None:
+    for name, equipment in CUSTOMERS.items():
+        records.add_owner(store, name, notes=equipment)
+    for t in DEMO_TUBES:
+        if records.get_tube(store, t.label) is None:
+            records.add_tube(store, t.label, t.tube_type, t.owner,
+                             notes=CUSTOMERS[t.owner].split(",")[0])
+
+
+def run_demo(db_path: Path, progress=None) -> dict:
+    """Earlier visits, then today's captures, into a fresh database at
+    db_path. Returns today's summaries and every tube's assessment."""
     if db_path.exists():
         db_path.unlink()
+    today = datetime.now(timezone.utc)
+    jobs = []
+    for t in DEMO_TUBES:
+        for n, (days, change) in enumerate(t.history):
+            when = (today - timedelta(days=days)).isoformat(timespec="milliseconds")
+            jobs.append((t, dict(t.sim, seed=t.sim["seed"] * 100 + n, **change), when))
+    jobs += [(t, t.sim, None) for t in DEMO_TUBES]
     rows = []
     with Store(db_path) as store:
-        for n, t in enumerate(DEMO_TUBES, 1):
+        _record(store)
+        for n, (t, sim, when) in enumerate(jobs, 1):
             if progress:
-                progress(n, len(DEMO_TUBES), t)
-            raw = run_capture(demo_url(t), store, t.label, t.section,
-                              {"range": t.range, "max_s": 40},
-                              tube_type=t.tube_type, notes=t.customer)
-            s = summary(raw)
-            s.update(type=t.tube_type, customer=t.customer)
-            rows.append(s)
+                progress(n, len(jobs), t, when)
+            raw = run_capture(demo_url(sim), store, t.label, t.section,
+                              {"range": t.range, "max_s": 40}, started_at=when)
+            if when is None:
+                s = summary(raw)
+                s.update(type=t.tube_type, customer=t.owner)
+                rows.append(s)
         stored = {r["uuid"]: r for r in store.list_captures()}
+        tubes = scoring.assess_fleet(store, config.load())
     for r in rows:
         r["stored_bytes"] = stored[r["uuid"]]["sample_bytes"]
-    return rows
+    return {"captures": rows, "tubes": tubes}

@@ -25,7 +25,9 @@ class UserInterrupt(KeyboardInterrupt):
 
 def run_capture(port_url: str, store: Store, tube: str, section: str,
                 params: dict | None = None, progress=None, tube_type: str | None = None,
-                notes: str | None = None) -> RawCapture:
+                notes: str | None = None, started_at: str | None = None) -> RawCapture:
+    """started_at: back-dates the capture (only the demo uses it, to lay down
+    its invented earlier visits)."""
     port = open_port(port_url)
     tester = Tester(Link(port), port_url)
     try:
@@ -36,6 +38,8 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
         except CaptureInterrupted as e:
             raw = e.raw
             raw.incomplete_reason = e.reason
+        if started_at:
+            raw.started_at = started_at
         store.save_capture(raw, tube_type=tube_type, notes=notes)
         try:
             raw.analysis = analyze_stored(store, raw.uuid)

@@ -129,7 +129,7 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
     s.drifting = s.ewma_signal or s.cusum_signal or s.trend_significant
     if s.at_limit:
         s.reasons.append(f"{where} is {fmt(s.change)} from its baseline, at or past its "
-                         f"limit ({s.limit:.4g} {unit})")
+                         f"limit ({f'{s.limit:.4g} {unit}'.strip()})")
     elif s.drifting:
         why = []
         if s.trend_significant:
@@ -169,7 +169,8 @@ def score_section(rows: list[dict], cfg: dict, section: str,
         base_idx = [uuids.index(u) for u in (baseline_uuids or []) if u in uuids] or None
         s = score_metric(m, ats, xs, n_base, base_idx, cfg, section, years)
         out["metrics"][m] = {k: v for k, v in s.__dict__.items() if k != "reasons"}
-        out["reasons"] += s.reasons
+        # metrics at their limit lead the reasons
+        out["reasons"] = (s.reasons + out["reasons"]) if s.at_limit else (out["reasons"] + s.reasons)
         if s.at_limit and s.baseline is not None:
             statuses.append("at limit")
         elif s.drifting:
@@ -268,6 +269,8 @@ def assess(tube: dict, sections: dict, cfg: dict, baselines: dict,
             continue
         sc = score_section(rows, cfg, sec, baselines.get((tube["label"], sec)))
         result["sections"][sec] = sc
+    # the worst section's reasons first
+    for sc in sorted(result["sections"].values(), key=lambda x: STATUS_ORDER.index(x["status"])):
         result["reasons"] += sc["reasons"]
     statuses = [s["status"] for s in result["sections"].values()]
     if not any(s["scored"] for s in result["sections"].values()):
