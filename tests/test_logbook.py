@@ -258,3 +258,14 @@ def test_capture_refuses_sections_or_types_that_do_not_fit(capsys, tmp_path):
     assert rc == 1 and "recorded as a 6V6" in err
     with Store(db) as s:
         assert s.db["captures"].count == 0
+
+
+def test_show_an_imported_capture(capsys, tmp_path):
+    db = tmp_path / "i.db"
+    import_series(capsys, db, tmp_path, "IM-1", n=1)
+    rc, rows, _ = gt(capsys, "list", "--db", str(db), "--json")
+    rc, shown, err = gt(capsys, "show", rows[0]["uuid"][:8], "--db", str(db), "--json",
+                        "--plot", str(tmp_path / "im.png"))
+    assert rc == 0, err
+    assert shown["source"] == "import" and shown["analysis"]["sections"]["A"]["cold_start_ok"]
+    assert (tmp_path / "im.png").read_bytes()[:4] == b"\x89PNG"

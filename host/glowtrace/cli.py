@@ -209,24 +209,39 @@ def cmd_list(args) -> int:
 
 
 def cmd_show(args) -> int:
-    from .analysis.curve import from_capture
-    from .convert import summary
+    from .analysis.curve import stored_curves
+    from .convert import KEY_FIGURES, summary
     from .store import Store
     with Store(_db(args), create=False) as store:
-        raw = store.load_capture(args.uuid)
-        raw.analysis = store.analysis(raw.uuid)
-    s = summary(raw)
-    s.update(board=raw.hello.get("board"), firmware=raw.hello.get("firmware"),
-             calibration=raw.hello.get("calibration"), params=raw.params, link=raw.link)
+        uuid = store.find_uuid(args.uuid)
+        analysis = store.analysis(uuid)
+        if store.capture_source(uuid) == "import":
+            row = store.db["captures"].get(uuid)
+            s = {k: row[k] for k in ("uuid", "tube", "section", "started_at", "ambient_c",
+                                     "n_sets")}
+            s.update(source="import", file=row["port"])
+            secs = (analysis or {}).get("sections", {})
+            s["analysis"] = {sec: {k: m.get(k) for k in KEY_FIGURES if k in m}
+                             for sec, m in secs.items()}
+            tube, sections = row["tube"], row["section"]
+        else:
+            raw = store.load_capture(uuid)
+            raw.analysis = analysis
+            s = summary(raw)
+            s.update(board=raw.hello.get("board"), firmware=raw.hello.get("firmware"),
+                     calibration=raw.hello.get("calibration"), params=raw.params,
+                     link=raw.link)
+            tube, sections = raw.tube, raw.section
+        curves = stored_curves(store, uuid) if args.plot else {}
     if args.json:
-        s["analysis"] = raw.analysis
+        s["analysis"] = analysis
     _emit(args, s, _render_summary)
-    if args.plot and raw.blocks:
+    if curves:
         from . import plots
-        for sec, c in from_capture(raw).items():
-            path = _plot_path(args.plot, sec, len(raw.section) > 1)
-            secs = (raw.analysis or {}).get("sections", {})
-            plots.figure(c, secs.get(sec, {}), path, f"{raw.tube} section {sec}")
+        for sec, c in curves.items():
+            path = _plot_path(args.plot, sec, len(sections) > 1)
+            plots.figure(c, (analysis or {}).get("sections", {}).get(sec, {}), path,
+                         f"{tube} section {sec}")
             err.print(f"wrote {path}")
     return 0
 
