@@ -43,6 +43,7 @@ class TubeType:
     controlled_warmup_s: float | None = None
     filament: bool = False
     tungsten_k: float = 1.0
+    hot_current_tolerance: float | None = None  # None: the scoring settings' default
     source: str = ""
 
     @property
@@ -77,7 +78,8 @@ def _parse(name: str, d: dict, origin: str) -> TubeType:
         parallel=_rating(d.get("parallel"), where),
         heater_pins=tuple(d.get("heater_pins", ())), centre_tap_pin=d.get("centre_tap_pin"),
         controlled_warmup_s=d.get("controlled_warmup_s"), filament=bool(d.get("filament")),
-        tungsten_k=float(d.get("tungsten_k", 1.0)), source=d.get("source", origin))
+        tungsten_k=float(d.get("tungsten_k", 1.0)),
+        hot_current_tolerance=d.get("hot_current_tolerance"), source=d.get("source", origin))
     if (t.heater is None) == (t.parallel is None):
         raise GlowtraceError(f"{where}: give either heater, or series and parallel")
     if (t.series is None) != (t.parallel is None):

@@ -295,6 +295,9 @@ def against_type(result: dict, sections: dict, tube_type, cfg: dict,
     out = {"rated_amps": None, "current_deviation": {}, "within_tolerance": None,
            "percentile": {}, "section_imbalance": None, "reasons": []}
     tol = cfg["type"]["hot_current_tolerance"]
+    if tube_type is not None and tube_type.hot_current_tolerance is not None:
+        tol = float(tube_type.hot_current_tolerance)
+    out["tolerance"] = tol
     latest = {sec: _latest_scored(rows) for sec, rows in sections.items()}
     if tube_type is not None:
         rated = tube_type.section_rating().amps
