@@ -7,7 +7,6 @@
 # DMA moves results to RAM, so USB traffic cannot stall sampling; the CPU
 # watches DMA progress and switches off on over-current within a few sets.
 # Slower phases: conversions paced by ticks_us and summed (oversampling).
-import array
 import json
 import select
 import sys

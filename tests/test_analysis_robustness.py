@@ -1,6 +1,5 @@
 """Bad curves and bad files: a clear message or a warning, never a traceback."""
 
-import json
 import subprocess
 import sys
 from pathlib import Path

@@ -1,7 +1,6 @@
 """Records, history scoring and the logbook commands, end to end."""
 
 import json
-import os
 import sqlite3
 
 import numpy as np

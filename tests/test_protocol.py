@@ -2,7 +2,6 @@
 
 import json
 import os
-import re
 import subprocess
 import zlib
 from pathlib import Path

@@ -4,7 +4,6 @@ The model runs under MicroPython in the simulator; its modules are plain
 Python, so these checks import them directly."""
 
 import sys
-from pathlib import Path
 
 import numpy as np
 import pytest

@@ -5,12 +5,12 @@ file says so). Users add or correct types in their own TOML file of the same
 form: $GLOWTRACE_TUBES, else ~/.config/glowtrace/tubes.toml."""
 
 import difflib
-import os
 import tomllib
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
 
+from . import paths
 from .errors import GlowtraceError
 
 BUILTIN = Path(__file__).resolve().parent / "data" / "tubes.toml"
@@ -123,11 +123,7 @@ class Catalogue:
 
 
 def user_file() -> Path:
-    env = os.environ.get("GLOWTRACE_TUBES")
-    if env:
-        return Path(env)
-    base = os.environ.get("XDG_CONFIG_HOME") or Path.home() / ".config"
-    return Path(base) / "glowtrace" / "tubes.toml"
+    return paths.user_config_file("GLOWTRACE_TUBES", "tubes.toml")
 
 
 @lru_cache(maxsize=4)

@@ -2,7 +2,6 @@
 command and turns library errors into one-line messages."""
 
 import argparse
-import json
 import signal
 import sys
 import time

@@ -3,10 +3,10 @@ own file merged over them: --config FILE, $GLOWTRACE_SCORING, or
 ~/.config/glowtrace/scoring.toml."""
 
 import copy
-import os
 import tomllib
 from pathlib import Path
 
+from . import paths
 from .errors import GlowtraceError
 
 DEFAULTS = Path(__file__).resolve().parent / "data" / "scoring.toml"
@@ -25,11 +25,7 @@ def _merge(base: dict, over: dict) -> dict:
 
 
 def user_file() -> Path:
-    env = os.environ.get("GLOWTRACE_SCORING")
-    if env:
-        return Path(env)
-    base = os.environ.get("XDG_CONFIG_HOME") or Path.home() / ".config"
-    return Path(base) / "glowtrace" / "scoring.toml"
+    return paths.user_config_file("GLOWTRACE_SCORING", "scoring.toml")
 
 
 def _read(path: Path) -> dict:

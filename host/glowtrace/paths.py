@@ -46,3 +46,13 @@ def default_db_path() -> Path:
         return Path(env)
     base = os.environ.get("XDG_DATA_HOME") or Path.home() / ".local" / "share"
     return Path(base) / "glowtrace" / "glowtrace.db"
+
+
+def user_config_file(env_var: str, name: str) -> Path:
+    """A user's own settings file: $env_var if set, else
+    $XDG_CONFIG_HOME/glowtrace/name (~/.config/glowtrace/name)."""
+    env = os.environ.get(env_var)
+    if env:
+        return Path(env)
+    base = os.environ.get("XDG_CONFIG_HOME") or Path.home() / ".config"
+    return Path(base) / "glowtrace" / name

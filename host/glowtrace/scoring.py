@@ -5,7 +5,6 @@ Reads only the `section_metrics` table (one row per capture and section, the
 newest analysis version of each), so a whole fleet is scored without parsing
 a single analysis document. Settings: config.py (data/scoring.toml)."""
 
-import math
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta, timezone
 

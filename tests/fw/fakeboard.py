@@ -1,6 +1,5 @@
 # A fake board for firmware unit tests: scripted currents, a clock that only
 # moves when sampled, and a byte buffer standing in for the USB link.
-import time
 
 
 class FakeBoard:
