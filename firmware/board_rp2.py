@@ -32,6 +32,7 @@ _ADC_CLOCK_HZ = const(48000000)
 _WDT_MS = const(8000)
 _FE_PATH = "/frontend.json"
 _CAL_PATH = "/calibration.json"
+REPL_FLAG = "/glowtrace_repl"
 
 _RESET_NAMES = {}
 for _n in ("PWRON_RESET", "WDT_RESET", "HARD_RESET", "SOFT_RESET", "DEEPSLEEP_RESET"):
@@ -207,3 +208,15 @@ class Rp2Board:
 
     def feed_watchdog(self):
         self.wdt.feed()
+
+    def save_calibration(self, cal):
+        with open(_CAL_PATH, "w") as f:
+            json.dump(cal, f)
+        self.calibration = cal
+
+    def enter_repl(self):
+        # the watchdog cannot be stopped: reboot, and have main.py stay at
+        # the REPL this once (mpremote then installs or inspects files)
+        with open(REPL_FLAG, "w") as f:
+            f.write("1")
+        machine.reset()

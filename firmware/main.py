@@ -1,7 +1,9 @@
 # Runs at boot on the tester. The gate pull-downs keep the heater off while
 # the board is in reset; the first thing this does is drive the gates low.
-# A 1.5 s window follows in which Ctrl-C reaches the REPL (mpremote uses it
-# to install firmware); after that the link is binary and the watchdog runs.
+# Then, unless the host asked for the REPL before this reboot (the flag file
+# board_rp2.REPL_FLAG), a 1.5 s window in which Ctrl-C still reaches the REPL,
+# and the firmware: a binary link and a running watchdog.
+import os
 import time
 
 from glowfw import frontend
@@ -9,8 +11,14 @@ from glowfw import frontend
 import board_rp2
 
 board_rp2.heater_pins(frontend.load("/frontend.json"))
-time.sleep_ms(1500)
+try:
+    os.remove(board_rp2.REPL_FLAG)
+    stay_at_repl = True
+except OSError:
+    stay_at_repl = False
 
-from glowfw import app  # noqa: E402
+if not stay_at_repl:
+    time.sleep_ms(1500)
+    from glowfw import app  # noqa: E402
 
-app.main(board_rp2.Rp2Board())
+    app.main(board_rp2.Rp2Board())

@@ -48,7 +48,8 @@ class HeaterSection:
         self.t_hot = t_hot
         self.reset()
         self.extra_ohm = 0.0      # contact or fault resistance in series
-        self.fault = None         # None, "open" or "short"
+        self.fault = None         # None, "open", "short" or "load" (a resistor)
+        self.load_ohm = 0.0
 
     def reset(self):
         self.tw = self.ta
@@ -63,6 +64,8 @@ class HeaterSection:
             return 1e9
         if self.fault == "short":
             return 0.005 + self.extra_ohm
+        if self.fault == "load":
+            return self.load_ohm + self.extra_ohm
         r = self.r20_main * self._alloy(self.tw) + self.extra_ohm
         if self.r20_exp:
             r += self.r20_exp * self._alloy(self.tx)
@@ -70,6 +73,8 @@ class HeaterSection:
 
     def step(self, amps, h):
         """Advance h seconds with this current flowing (0 when off)."""
+        if self.fault is not None:
+            return  # an open, short or resistor in the socket has no heater to warm
         i2 = amps * amps
         # wire: Joule heat in, conduction to the sleeve out
         p_w = i2 * self.r20_main * self._alloy(self.tw)

@@ -6,6 +6,7 @@
 # Two clocks: now_us() is simulated heater time (captures run faster than
 # real time unless paced); link_ms() is the wall clock, because host silence
 # is a real-world event and is timed as one.
+import json
 import math
 import random
 import select
@@ -30,7 +31,14 @@ class SimBoard:
         self.ranges = list(fe["current_ranges"])
         self.board_id = "sim-" + scenario.get("serial", "0001")
         self.reset_cause = scenario.get("reset_cause", "power_on")
+        self.state_dir = scenario.get("state_dir")
         self.calibration = {"source": "nominal", "gain": 1.0, "offset_codes": 0}
+        if self.state_dir:
+            try:
+                with open(self.state_dir + "/calibration.json") as f:
+                    self.calibration = json.load(f)
+            except OSError:
+                pass
         self.max_on_s = fe["limits"]["max_on_s"]
         self.vref = fe["adc"]["vref_v"]
         self.counts = frontend.counts(fe)
@@ -65,6 +73,14 @@ class SimBoard:
         self.fault_index = 0 if fault_sec == "A" else 1
         if fault in ("open", "short"):
             self.sections[self.fault_index].fault = fault
+        load = scenario.get("load_ohm")
+        if load:  # a resistor in the socket instead of a tube (calibration, self-test)
+            for h in self.sections:
+                h.fault = "load"
+                h.load_ohm = float(load)
+        # a channel whose amplifier or wire is broken reads nothing
+        self.broken = scenario.get("broken_channel")
+        self.amp_gain_err = scenario.get("amp_gain_error", {"low": 0.004, "high": -0.007})
         self.supply_v = scenario.get("supply_v", tube["section_v"])
         self.source_ohm = scenario.get("source_ohm", 0.02)
         self.gain_err = scenario.get("adc_gain_error", [0.006, -0.004, 0.003, 0.0])
@@ -194,9 +210,9 @@ class SimBoard:
             for c in range(nch):
                 name = chans[c]
                 if name == "ia":
-                    v = amps[0] / self.amps_per_volt
+                    v = amps[0] / self.amps_per_volt * (1.0 + self.amp_gain_err[self.range])
                 elif name == "ib":
-                    v = amps[1] / self.amps_per_volt
+                    v = amps[1] / self.amps_per_volt * (1.0 + self.amp_gain_err[self.range])
                 elif name == "v":
                     v = self.v_node / self.v_per_v
                 else:
@@ -204,7 +220,7 @@ class SimBoard:
                     # settled level, so a tenfold flash still fits the range
                     v = 0.2 * (self.sections[0].light() * (self.mask & 1)
                                + self.sections[1].light() * ((self.mask >> 1) & 1))
-                s = self._code_sum(c, v, oversample)
+                s = self._code_sum(c, v, oversample) if name != self.broken else 0
                 buf[base + c] = s
                 if trip_code and c in current_idx and s > trip_sum:
                     tripped = True
@@ -256,3 +272,13 @@ class SimBoard:
 
     def feed_watchdog(self):
         pass
+
+    def save_calibration(self, cal):
+        self.calibration = cal
+        if self.state_dir:
+            with open(self.state_dir + "/calibration.json", "w") as f:
+                json.dump(cal, f)
+
+    def enter_repl(self):
+        # the simulated board has no REPL to go to: the firmware stops
+        raise SystemExit("firmware stopped at the host's request")

@@ -2,7 +2,7 @@
 # a time. The heater is off before the first line runs and after every capture.
 import json
 
-from glowfw import VERSION, proto, supervisor
+from glowfw import VERSION, measure, proto, supervisor
 from glowfw.capture import Capture, CaptureError, parse_params
 from glowfw.link import Link
 from glowfw.supervisor import Supervisor
@@ -30,7 +30,8 @@ class App:
     def status(self):
         return {"state": "capturing" if self.capture else "idle",
                 "heater": self.board.heater_state(),
-                "last_trip": self.last_trip, "next_id": self.next_id}
+                "last_trip": self.last_trip, "next_id": self.next_id,
+                "ms": self.board.link_ms(), "calibration": self.board.calibration}
 
     def reply(self, seq, ok, msg=None):
         self.link.send_json(proto.REPLY, {"to": seq, "ok": ok, "msg": msg})
@@ -59,6 +60,35 @@ class App:
                 return
             self.reply(seq, True)
             self.pending = params
+        elif mtype == proto.MEASURE:
+            if self.capture:
+                self.reply(seq, False, "busy: a capture is running")
+                return
+            try:
+                p = measure.parse(json.loads(bytes(body)), self.board)
+            except (ValueError, measure.MeasureError) as e:
+                self.reply(seq, False, str(e))
+                return
+            result = measure.run(self.board, p)
+            result["to"] = seq
+            self.link.send_json(proto.MEASUREMENT, result)
+        elif mtype == proto.SET_CALIBRATION:
+            try:
+                cal = json.loads(bytes(body))
+                if not isinstance(cal, dict) or "source" not in cal:
+                    raise ValueError("a calibration is an object with a source")
+                self.board.save_calibration(cal)
+            except (ValueError, OSError) as e:
+                self.reply(seq, False, "calibration not saved: " + str(e))
+                return
+            self.reply(seq, True)
+        elif mtype == proto.ENTER_REPL:
+            if self.capture:
+                self.reply(seq, False, "busy: a capture is running")
+                return
+            self.board.heater(0)
+            self.reply(seq, True)
+            self.board.enter_repl()
         else:
             self.reply(seq, False, "unknown command %d" % mtype)
 

@@ -14,6 +14,7 @@ BLOCK = const(0x11)
 CAPTURE_END = const(0x12)
 TRIP = const(0x13)
 NOTICE = const(0x14)
+MEASUREMENT = const(0x15)
 
 # host -> device
 IDENTIFY = const(0x81)
@@ -21,6 +22,9 @@ CAPTURE = const(0x82)
 ABORT = const(0x83)
 HEARTBEAT = const(0x84)
 GET_STATUS = const(0x85)
+MEASURE = const(0x86)
+SET_CALIBRATION = const(0x87)
+ENTER_REPL = const(0x88)
 
 # BLOCK body header: capture id u16, block index u16, phase u8, channel
 # count u8, set count u16, oversample u8, pad u8, start time i32 (us from

@@ -10,7 +10,7 @@ from pathlib import Path
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
-from . import __version__, cli_logbook, paths
+from . import __version__, cli_hardware, cli_logbook, paths
 from .cli_common import SAFETY_NOTE, _db, _emit, _fmt, _num, err, out
 from .errors import GlowtraceError
 
@@ -49,7 +49,10 @@ def cmd_sim(args) -> int:
 
     from .sim import SimTester, build_scenario
     settings = _sim_settings(args)
-    sim = SimTester(build_scenario(**settings))
+    # the simulated board's flash (its calibration) lives on between runs
+    state = paths.default_db_path().parent / "sim" / settings.get("serial", "0001")
+    state.mkdir(parents=True, exist_ok=True)
+    sim = SimTester(dict(build_scenario(**settings), state_dir=str(state)))
     path = sim.start()
     url = "glowsim://?" + urlencode(settings)
     info = {"port": path, "url": url, "pid": sim.proc.pid}
@@ -150,9 +153,9 @@ def cmd_capture(args) -> int:
         args.type = catalogue.load().get(args.type).name  # unknown type: stop before switching on
     if Path(_db(args)).exists():  # a known tube: its type and sections must fit
         with Store(_db(args)) as store:
-            args.type = check_capture_target(store, args.tube, args.type, args.section)
+            kind = check_capture_target(store, args.tube, args.type, args.section)
     else:
-        check_capture_target(None, args.tube, args.type, args.section)
+        kind = check_capture_target(None, args.tube, args.type, args.section)
     port = args.port or find_tester()
     params = {"range": args.range, "max_s": args.max_s,
               "settle_band": args.settle_band, "settle_hold_s": args.settle_hold_s}
@@ -161,7 +164,7 @@ def cmd_capture(args) -> int:
         try:
             with bar:
                 raw = run_capture(port, store, args.tube, args.section, params, update,
-                                  tube_type=args.type)
+                                  tube_type=kind)
         except UserInterrupt as e:
             off = ("heater off, confirmed by the tester" if e.off_confirmed else
                    "heater-off NOT confirmed: the tester switches off by itself when "
@@ -486,6 +489,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.set_defaults(func=cmd_types)
 
     cli_logbook.register(sub, common)
+    cli_hardware.register(sub, common)
 
     s = sub.add_parser("demo", parents=[common],
                        help="capture an invented shop's tubes on the simulated tester")

@@ -5,6 +5,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .calibration import gain_offset, nominal_scale
 from .capture import RawCapture
 
 
@@ -17,30 +18,27 @@ class Curve:
 
 
 def to_physical(raw: RawCapture) -> Curve:
+    """Amps and volts with the calibration the capture was made with. The
+    current channels' zero is their reading before switch-on (heater off)."""
     fe = raw.hello["frontend"]
-    cal = raw.hello.get("calibration") or {}
-    gain = float(cal.get("gain", 1.0))
-    counts = float(1 << fe["adc"]["bits"])
-    vref = fe["adc"]["vref_v"]
+    cal = raw.hello.get("calibration")
     t_us, sums, osm = raw.arrays()
     mean = sums / osm[:, None].astype(float)
     base = t_us < 0
-    # the heater is off before switch-on: current channels read their offset
     offsets = mean[base].mean(axis=0) if base.any() else np.zeros(mean.shape[1])
     rng = raw.params.get("range", "low")
-    apv = fe["current_ranges"][rng]["amps_per_volt"]
     amps = {}
-    for i, name in enumerate(raw.channels):
-        if name in ("ia", "ib"):
-            amps[name[1].upper()] = (mean[:, i] - offsets[i]) / counts * vref * apv / gain
     volts = np.zeros(len(t_us))
-    if "v" in raw.channels:
-        i = raw.channels.index("v")
-        volts = mean[:, i] / counts * vref * fe["voltage_divider"]["volts_per_volt"] / gain
     light = None
-    if "light" in raw.channels:
-        i = raw.channels.index("light")
-        light = (mean[:, i] - offsets[i]) / counts * vref
+    for i, name in enumerate(raw.channels):
+        gain, cal_offset = gain_offset(cal, name, rng)
+        scale = nominal_scale(fe, name, rng) * gain
+        if name in ("ia", "ib"):
+            amps[name[1].upper()] = (mean[:, i] - offsets[i]) * scale
+        elif name == "v":
+            volts = (mean[:, i] - cal_offset) * scale
+        elif name == "light":
+            light = (mean[:, i] - offsets[i]) * scale
     return Curve(t_us / 1e6, amps, volts, light)
 
 

@@ -5,10 +5,12 @@ board).
 A capture that cannot be whole is still stored, marked incomplete with its
 reason: nothing that arrived is thrown away."""
 
+from . import catalogue
 from .analysis.runner import analyze_stored
 from .capture import RawCapture
 from .errors import GlowtraceError
 from .link import Link
+from .sockets import check_for_tester
 from .store import Store
 from .tester import CaptureInterrupted, Tester
 from .transport import open_port
@@ -32,7 +34,10 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
     tester = Tester(Link(port), port_url)
     try:
         tester.link.drain()
-        tester.identify()
+        hello = tester.identify()
+        if tube_type:
+            # refuse before switching on if this tester cannot wire the type
+            check_for_tester(catalogue.load().get(tube_type), section, hello["frontend"])
         try:
             raw = tester.capture(tube, section, params or {}, progress)
         except CaptureInterrupted as e:

@@ -22,6 +22,7 @@ BLOCK = 0x11
 CAPTURE_END = 0x12
 TRIP = 0x13
 NOTICE = 0x14
+MEASUREMENT = 0x15
 
 # host -> device
 IDENTIFY = 0x81
@@ -29,6 +30,9 @@ CAPTURE = 0x82
 ABORT = 0x83
 HEARTBEAT = 0x84
 GET_STATUS = 0x85
+MEASURE = 0x86
+SET_CALIBRATION = 0x87
+ENTER_REPL = 0x88
 
 NAMES = {v: k for k, v in dict(globals()).items()
          if k.isupper() and isinstance(v, int) and k != "PROTOCOL_VERSION"}

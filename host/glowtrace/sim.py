@@ -18,7 +18,8 @@ SCENARIO_KEYS = {
     "tube": str, "serial": str, "ambient_c": float, "flash_a": float, "flash_b": float,
     "fault": str, "fault_section": str, "supply_v": float, "source_ohm": float,
     "contact_ohm": float, "preheat_k": float, "reset_at_s": float, "pace": float,
-    "light": int, "seed": int, "adc_noise_lsb": float,
+    "light": int, "seed": int, "adc_noise_lsb": float, "load_ohm": float,
+    "broken_channel": str, "state_dir": str,
 }
 # settings that override the tube preset's heater (per section)
 HEATER_KEYS = {"section_v": float, "section_a": float, "hot_cold_ratio": float,
@@ -45,6 +46,8 @@ def build_scenario(**settings) -> dict:
         raise GlowtraceError(f"unknown simulator setting(s): {', '.join(sorted(unknown))}")
     if settings.get("fault") not in (None, *FAULTS):
         raise GlowtraceError(f"fault must be one of {', '.join(FAULTS)}")
+    if settings.get("broken_channel") not in (None, "ia", "ib", "v"):
+        raise GlowtraceError("broken_channel must be ia, ib or v")
     scenario = {k: v for k, v in settings.items() if k != "tube" and k not in HEATER_KEYS}
     tube = dict(presets[name], name=name)
     tube.update({k: v for k, v in settings.items() if k in HEATER_KEYS})
@@ -81,8 +84,13 @@ class SimTester:
         self._hold_fd = None
         self.log = None
         self.scenario_file = None
+        self._state = None
 
     def start(self) -> str:
+        if "state_dir" not in self.scenario:
+            # the board's flash (its calibration file) for this run only
+            self._state = tempfile.TemporaryDirectory(prefix="glowsim-state-")
+            self.scenario = dict(self.scenario, state_dir=self._state.name)
         master, slave = pty.openpty()
         # raw before anyone writes: no echo, no CR/LF translation, no signals
         tty.setraw(slave)

@@ -108,11 +108,17 @@ def metric_rows(uuid: str, version: str, result: dict, tube: str | None, at: str
     return out
 
 
+def _m4_calibrations(db: sqlite_utils.Database) -> None:
+    db["calibrations"].create({"id": int, "board": str, "at": str, "data": str}, pk="id")
+    db["calibrations"].create_index(["board", "at"])
+
+
 # (version, name, function). Append only: never edit a released migration.
 MIGRATIONS = [
     (1, "initial: tubes, captures, capture_samples", _m1_initial),
     (2, "analyses of captures, per analysis version", _m2_analyses),
     (3, "owners, capture source, section metrics, baselines", _m3_records),
+    (4, "calibrations of testers", _m4_calibrations),
 ]
 LATEST = MIGRATIONS[-1][0]
 
@@ -351,6 +357,16 @@ class Store:
         vals.sort()
         mid = len(vals) // 2
         return vals[mid] if len(vals) % 2 else 0.5 * (vals[mid - 1] + vals[mid])
+
+    def save_calibration(self, cal: dict) -> None:
+        with self.transaction() as conn:
+            conn.execute("INSERT INTO calibrations (board, at, data) VALUES (?, ?, ?)",
+                         [cal.get("board"), cal.get("at"), json.dumps(cal)])
+
+    def calibrations(self, board: str | None = None) -> list[dict]:
+        sql = "SELECT data FROM calibrations" + (" WHERE board = ?" if board else "")
+        return [json.loads(r[0]) for r in self.db.execute(sql + " ORDER BY at",
+                                                          [board] if board else []).fetchall()]
 
     def tube(self, label: str) -> dict | None:
         rows = list(self.db["tubes"].rows_where("label = ?", [label]))

@@ -65,6 +65,46 @@ class Tester:
             raise LinkError("the tester did not answer a status request")
         return f.json()
 
+    def _command(self, mtype: int, body, timeout: float = 3.0) -> None:
+        """Send a command that is answered by a REPLY; raise if refused."""
+        seq = self._send_json(mtype, body) if body is not None else self._send_empty(mtype)
+        f = self._await({protocol.REPLY}, timeout, reply_to=seq)
+        if f is None:
+            raise LinkError("the tester did not answer")
+        if not f.json()["ok"]:
+            raise DeviceError(f"the tester refused: {f.json()['msg']}")
+
+    def _send_empty(self, mtype: int) -> int:
+        seq = self.link.seq
+        self.link.send(mtype)
+        return seq
+
+    def measure(self, section: str = "", range_name: str = "low", sets: int = 100,
+                interval_us: int = 1000, oversample: int = 16, settle_ms: int = 20) -> dict:
+        """A short steady measurement (heater on for at most 0.5 s): mean and
+        standard deviation of each channel in converter codes."""
+        seq = self._send_json(protocol.MEASURE, {
+            "section": section, "range": range_name, "sets": sets,
+            "interval_us": interval_us, "oversample": oversample, "settle_ms": settle_ms})
+        deadline = time.monotonic() + 3.0
+        while time.monotonic() < deadline:
+            f = self.link.receive(deadline - time.monotonic())
+            if f is None:
+                break
+            if f.mtype == protocol.MEASUREMENT and f.json().get("to") == seq:
+                return f.json()
+            if f.mtype == protocol.REPLY and f.json().get("to") == seq and not f.json()["ok"]:
+                raise DeviceError(f"the tester refused the measurement: {f.json()['msg']}")
+        raise LinkError("the tester did not return the measurement")
+
+    def set_calibration(self, cal: dict) -> None:
+        self._command(protocol.SET_CALIBRATION, cal)
+        if self.hello is not None:
+            self.hello["calibration"] = cal
+
+    def enter_repl(self) -> None:
+        self._command(protocol.ENTER_REPL, None)
+
     def abort(self) -> None:
         """Ask for heater off. Best effort: if the link is gone the firmware's
         host-silence trip does the same within its timeout."""

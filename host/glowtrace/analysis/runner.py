@@ -1,12 +1,20 @@
 """Analysis of stored captures: right after a capture, and again whenever the
 analysis improves (`glowtrace reanalyze`)."""
 
-from .. import catalogue
+from .. import catalogue, config
+from ..calibration import age_warning
 from ..errors import GlowtraceError
 from ..store import Store
 from . import ANALYSIS_VERSION
 from .analyze import analyze_capture, analyze_curve
 from .curve import Curve
+
+
+def _max_cal_age() -> float:
+    try:
+        return float(config.load()["calibration"]["max_age_days"])
+    except GlowtraceError:
+        return 180.0
 
 
 def _tube_type(store: Store, label: str | None, notes: list):
@@ -35,6 +43,9 @@ def analyze_stored(store: Store, uuid: str) -> dict:
         result = analyze_capture(raw, tube_type, history)
     if not raw.complete:
         notes.append(f"capture incomplete ({raw.incomplete_reason}): figures may be partial")
+    stale = age_warning(raw.hello.get("calibration"), raw.started_at, _max_cal_age())
+    if stale:
+        notes.append(stale)
     if notes:
         result["warnings"] = result.get("warnings", []) + notes
     store.save_analysis(uuid, result)

@@ -1,0 +1,182 @@
+"""Tester commands: which socket to use, calibration, self-test, firmware."""
+
+from urllib.parse import parse_qsl, urlencode, urlsplit
+
+from rich.table import Table
+
+from . import catalogue
+from .cli_common import _db, _emit, err, out
+from .errors import GlowtraceError
+
+
+def cmd_socket(args) -> int:
+    from .sockets import wiring_for
+    t = catalogue.load().get(args.type)
+    fitted = args.fitted.split(",") if args.fitted else None
+    w = wiring_for(t, fitted)
+    res = {"type": t.name, "socket": w.socket, "wiring": w.wiring, "supply_pin": w.supply_pin,
+           "section_pins": w.section_pins, "supply_v": w.supply_v, "section_amps": w.section_a,
+           "sections": "".join(w.section_pins)}
+    _emit(args, res, lambda r: out.print(
+        f"{t.name}: {w.describe()}.\nCapture with --section "
+        f"{'A, B or AB' if len(w.section_pins) > 1 else 'A'}; each section draws "
+        f"{w.section_a:g} A hot and several times that at switch-on "
+        f"({'--range high' if w.section_a * 8 > 3.1 else 'the low range suits'})."))
+    return 0
+
+
+def _sim_step_url(port: str, load_ohm: float | None) -> str:
+    """A glowsim:// URL with the fixture of a calibration or self-test step:
+    the simulated socket holds the given resistor (None: nothing)."""
+    parts = urlsplit(port)
+    q = dict(parse_qsl(parts.query))
+    q["load_ohm"] = str(load_ohm if load_ohm is not None else 1e9)
+    return "glowsim://?" + urlencode(q)
+
+
+def _open_tester(url: str):
+    from .link import Link
+    from .tester import Tester
+    from .transport import open_port
+    p = open_port(url)
+    t = Tester(Link(p), url)
+    t.link.drain()
+    t.identify()
+    return p, t
+
+
+def cmd_calibrate(args) -> int:
+    from . import calibration
+    from .ports import find_tester
+    from .store import Store
+    port = args.port or find_tester()
+    ref = calibration.Reference(args.ref, args.ref_tol / 100)
+    if not 1.0 <= args.supply_v <= 30.0:
+        raise GlowtraceError("--supply-v is your meter's reading of the heater supply, 1..30 V")
+    simulated = port.startswith("glowsim://")
+    state = {"port": None, "tester": None}
+    loads = {"open": None, "reference": args.ref}
+    steps = {
+        "open": "Leave the socket EMPTY (no tube, no resistor). Both sections will be "
+                "switched on briefly to read the channels' zero.",
+        "reference": f"Fit the {args.ref:g} ohm reference across section A, and a second "
+                     "one across section B for a dual socket (CT wiring). Each carries about "
+                     "an amp for a second and gets warm: use 10 W or larger resistors with "
+                     "short, firm leads.",
+    }
+
+    def get_tester(step):
+        if not args.json:
+            out.print(f"[bold]Step '{step}':[/] {steps[step]}")
+        if simulated:  # the simulated socket is set up by the URL
+            if state["port"] is not None:
+                state["port"].close()
+            state["port"], state["tester"] = _open_tester(_sim_step_url(port, loads[step]))
+        else:
+            if state["tester"] is None:
+                state["port"], state["tester"] = _open_tester(port)
+            if not args.yes:
+                input("Press Enter when ready (Ctrl-C to stop)... ")
+        return state["tester"]
+    try:
+        cal = calibration.run(get_tester, args.supply_v, args.meter_tol / 100, ref)
+    finally:
+        if state["port"] is not None:
+            state["port"].close()
+    with Store(_db(args)) as store:
+        store.save_calibration(cal)
+
+    def render(c):
+        t = Table("channel", "range", "gain", "offset, codes", "uncertainty (k=1)",
+                  title=f"Calibration of {c['board']}, written to the board and {_db(args)}")
+        for ch, v in c["channels"].items():
+            rows = v.items() if ch != "v" else [("-", v)]
+            for rng, g in rows:
+                t.add_row(ch, rng, f"{g['gain']:.5f}", f"{g['offset_codes']:.2f}",
+                          f"{100 * g['u_gain']:.2f} %")
+        out.print(t)
+    _emit(args, cal, render)
+    return 0
+
+
+def cmd_selftest(args) -> int:
+    from . import selftest
+    from .ports import find_tester
+    port = args.port or find_tester()
+    if port.startswith("glowsim://"):
+        port = _sim_step_url(port, args.load_ohm)
+    elif not args.yes and not args.json:
+        out.print(f"Fit the {args.load_ohm:g} ohm dummy load across section A (and section "
+                  "B for a dual socket). It carries about an amp: use a power resistor.")
+        input("Press Enter when ready... ")
+    p, t = _open_tester(port)
+    try:
+        def show(c):
+            if not args.json:
+                mark = "[green]ok[/]  " if c.ok else "[red]FAIL[/]"
+                out.print(f"{mark} {c.name}: {c.detail}")
+                if not c.ok and c.advice:
+                    out.print(f"      -> {c.advice}")
+        checks = selftest.run(t, args.load_ohm, show)
+    finally:
+        p.close()
+    failed = [c for c in checks if not c.ok]
+    if args.json:
+        _emit(args, {"passed": not failed, "checks": [c.as_dict() for c in checks]}, None)
+    else:
+        out.print(f"{len(checks) - len(failed)} of {len(checks)} checks passed."
+                  + ("" if not failed else " Fix the first failure first; later ones often follow from it."))
+    return 0 if not failed else 3
+
+
+def cmd_firmware(args) -> int:
+    from . import firmware_install
+    from .ports import find_tester, probe
+    port = args.port or find_tester()
+    if args.action == "version":
+        hello = probe(port, timeout=3.0)
+        if hello is None:
+            raise GlowtraceError(f"no glowtrace firmware answered on {port}")
+        res = {k: hello.get(k) for k in ("firmware", "protocol", "board", "reset_cause")}
+        res["calibration"] = (hello.get("calibration") or {}).get("at") or "nominal"
+        res["this_glowtrace_installs"] = firmware_install.firmware_version()
+        _emit(args, res, lambda r: out.print(
+            f"{port}: firmware {r['firmware']} (protocol {r['protocol']}) on {r['board']}, "
+            f"calibration {r['calibration']}; this glowtrace installs {r['this_glowtrace_installs']}"))
+        return 0
+    hello = firmware_install.install(port, progress=lambda m: err.print(m))
+    _emit(args, {"port": port, "firmware": hello["firmware"], "board": hello["board"]},
+          lambda r: out.print(f"Installed firmware {r['firmware']} on {r['board']} ({port})."))
+    return 0
+
+
+def register(sub, common) -> None:
+    s = sub.add_parser("socket", parents=[common], help="which socket and wiring a type needs")
+    s.add_argument("type")
+    s.add_argument("--fitted", help="sockets your tester has, comma-separated "
+                                    "(default: any of the reference design's)")
+    s.set_defaults(func=cmd_socket)
+
+    s = sub.add_parser("calibrate", parents=[common],
+                       help="calibrate the tester with reference resistors")
+    s.add_argument("--port", help="serial device or glowsim:// URL (default: found on USB)")
+    s.add_argument("--supply-v", type=float, required=True,
+                   help="the heater supply at the empty socket, as your meter reads it")
+    s.add_argument("--meter-tol", type=float, default=0.5, help="meter tolerance, %% (0.5)")
+    s.add_argument("--ref", type=float, default=4.7,
+                   help="the reference resistor's value, ohm (4.7)")
+    s.add_argument("--ref-tol", type=float, default=1.0, help="its tolerance, %% (1)")
+    s.add_argument("--yes", action="store_true", help="do not wait for Enter between steps")
+    s.set_defaults(func=cmd_calibrate)
+
+    s = sub.add_parser("selftest", parents=[common], help="the tester checks itself")
+    s.add_argument("--port")
+    s.add_argument("--load-ohm", type=float, default=4.7,
+                   help="the dummy load fitted in each section, ohm (4.7)")
+    s.add_argument("--yes", action="store_true", help="do not wait for Enter")
+    s.set_defaults(func=cmd_selftest)
+
+    s = sub.add_parser("firmware", parents=[common], help="install or query the firmware")
+    s.add_argument("action", choices=["install", "version"])
+    s.add_argument("--port", help="serial device (default: the board found on USB)")
+    s.set_defaults(func=cmd_firmware)
