@@ -238,7 +238,7 @@ def test_migration_from_schema_2_backfills_metrics(tmp_path, monkeypatch):
                      [raw.uuid, json.dumps(result)])
     monkeypatch.undo()
     with Store(db) as s:
-        assert s.schema_version() == 3
+        assert s.schema_version() == store_mod.LATEST
         rows = list(s.db["section_metrics"].rows)
         assert len(rows) == 1 and rows[0]["scored"] == 1
         assert rows[0]["inrush_20c"] == pytest.approx(6.6 * 6.3 / 6.25)
