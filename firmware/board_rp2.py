@@ -103,9 +103,26 @@ class Rp2Board:
     def amps_to_code(self, name, amps):
         return frontend.amps_to_code(self.fe, name, amps)
 
+    def _room_sensor(self):
+        """The 1-Wire sensor U3 on the socket plate, if one answers."""
+        try:
+            import ds18x20
+            import onewire
+            ds = ds18x20.DS18X20(onewire.OneWire(machine.Pin(self.fe["gpio"]["ambient_1wire"])))
+            roms = ds.scan()
+            return (ds, roms[0]) if roms else None
+        except (ImportError, OSError):
+            return None
+
     def ambient_c(self):
-        # internal sensor (RP2040 datasheet 4.9.5): coarse, a few kelvin;
-        # an external sensor on the socket plate is better (schematics/)
+        sensor = self._room_sensor()
+        if sensor:
+            ds, rom = sensor
+            ds.convert_temp()
+            time.sleep_ms(750)  # 12-bit conversion time, before the heater is on
+            return round(ds.read_temp(rom), 1)
+        # fallback: the chip's own sensor (RP2040 datasheet 4.9.5), coarse (a
+        # few kelvin, and warmed by the chip); the host warns of it
         v = self.temp_adc.read_u16() * 3.3 / 65535
         return round(27.0 - (v - 0.706) / 0.001721, 1)
 

@@ -83,7 +83,7 @@ class SimBoard:
         self.amp_gain_err = scenario.get("amp_gain_error", {"low": 0.004, "high": -0.007})
         self.supply_v = scenario.get("supply_v", tube["section_v"])
         self.source_ohm = scenario.get("source_ohm", 0.02)
-        self.gain_err = scenario.get("adc_gain_error", [0.006, -0.004, 0.003, 0.0])
+        self.gain_err = scenario.get("adc_gain_error", [0.006, -0.012, 0.003, 0.0])
         self.offset = scenario.get("adc_offset_codes", [6.0, 4.0, 3.0, 2.0])
         self.noise = scenario.get("adc_noise_lsb", 1.5)
         self.reset_at_us = scenario.get("reset_at_s", -1) * 1e6
