@@ -121,8 +121,8 @@ class Rp2Board:
             ds.convert_temp()
             time.sleep_ms(750)  # 12-bit conversion time, before the heater is on
             return round(ds.read_temp(rom), 1)
-        # fallback: the chip's own sensor (RP2040 datasheet 4.9.5), coarse (a
-        # few kelvin, and warmed by the chip); the host warns of it
+        # fallback: the chip's own sensor (RP2040 datasheet 4.9.5): coarse, a
+        # few kelvin, and warmed by the chip itself
         v = self.temp_adc.read_u16() * 3.3 / 65535
         return round(27.0 - (v - 0.706) / 0.001721, 1)
 

@@ -2,6 +2,7 @@
 command and turns library errors into one-line messages."""
 
 import argparse
+import os
 import signal
 import sys
 import time
@@ -365,6 +366,9 @@ def cmd_demo(args) -> int:
                   "simulated tester (real firmware under micropython).")
 
     def progress(n, total, t, when):
+        if t is None:
+            err.print("  calibrating the tester: socket empty, then a 4.7 ohm reference")
+            return
         day = f"visit of {when[:10]}" if when else "today"
         err.print(f"  [{n}/{total}] {t.label} {t.tube_type} section {t.section}, {day}")
     t0 = time.monotonic()
@@ -509,6 +513,11 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         err.print("Interrupted.")
         return 130
+    except BrokenPipeError:
+        # the reader went away (`glowtrace list | head`): stop quietly
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":

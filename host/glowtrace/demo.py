@@ -4,6 +4,7 @@ database, with the same tubes' earlier visits laid down first so that the
 logbook has a history to judge. Shop, customers, equipment and tube labels
 are invented for this project."""
 
+import shutil
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
@@ -11,7 +12,10 @@ from urllib.parse import urlencode
 
 from . import config, records, scoring
 from .convert import summary
+from .link import Link
 from .procedure import run_capture
+from .tester import Tester
+from .transport import open_port
 from .store import Store
 
 SHOP = "Kestrel Street Valve Bench (an invented repair shop)"
@@ -37,26 +41,26 @@ class DemoTube:
 
 DEMO_TUBES = [
     DemoTube("KS-0117-V1", "12AX7", "Orla Venn", "AB",
-             {"tube": "12AX7", "serial": "0117", "ambient_c": 21.5, "seed": 11},
+             {"tube": "12AX7", "ambient_c": 21.5, "seed": 11},
              history=[(180, {"ambient_c": 19.0}), (120, {"ambient_c": 24.5}),
                       (60, {"ambient_c": 20.5})]),
     DemoTube("KS-0117-V2", "12AX7", "Orla Venn", "A",
-             {"tube": "12AX7", "serial": "0117", "ambient_c": 21.6, "seed": 12,
+             {"tube": "12AX7", "ambient_c": 21.6, "seed": 12,
               "flash_b": 0.12, "light": 1}),
     # section B of V2 flashes, and has been flashing more at every visit
     DemoTube("KS-0117-V2", "12AX7", "Orla Venn", "B",
-             {"tube": "12AX7", "serial": "0117", "ambient_c": 21.6, "seed": 13,
+             {"tube": "12AX7", "ambient_c": 21.6, "seed": 13,
               "flash_b": 0.12, "light": 1},
              history=[(150, {"flash_b": 0.01}), (120, {"flash_b": 0.03}),
                       (90, {"flash_b": 0.05}), (60, {"flash_b": 0.07}),
                       (30, {"flash_b": 0.09})]),
     DemoTube("KS-0122-V5", "6V6", "Marek Doyle-Ashby", "A",
-             {"tube": "6V6", "serial": "0122", "ambient_c": 22.4, "seed": 21}),
+             {"tube": "6V6", "ambient_c": 22.4, "seed": 21}),
     DemoTube("KS-0122-V7", "5U4GB", "Marek Doyle-Ashby", "A",
-             {"tube": "5U4GB", "serial": "0122", "ambient_c": 22.4, "seed": 22},
+             {"tube": "5U4GB", "ambient_c": 22.4, "seed": 22},
              range="high"),
     DemoTube("KS-0130-V3", "12BA6", "Juniper Hall radio club", "A",
-             {"tube": "12BA6", "serial": "0130", "ambient_c": 19.8, "seed": 31}),
+             {"tube": "12BA6", "ambient_c": 19.8, "seed": 31}),
 ]
 
 
@@ -73,20 +77,52 @@ def _record(store: Store) -> None:
                              notes=CUSTOMERS[t.owner].split(",")[0])
 
 
+TESTER = {"serial": "KS01"}  # the shop has one tester; every visit uses it
+
+
+def _calibrate(state_dir: Path) -> dict:
+    """The shop calibrates its (simulated) tester first: socket empty, then a
+    4.7 ohm reference in each section; the result stays on the board."""
+    from .calibration import Reference, run
+    ctx = {}
+
+    def get_tester(step):
+        if "port" in ctx:
+            ctx["port"].close()
+        load = 4.7 if step == "reference" else 1e9
+        ctx["port"] = open_port(demo_url(dict(TESTER, state_dir=str(state_dir), load_ohm=load)))
+        ctx["tester"] = Tester(Link(ctx["port"]), "demo")
+        ctx["tester"].identify()
+        return ctx["tester"]
+    try:
+        return run(get_tester, supply_v=6.3, meter_tol=0.005, ref=Reference(4.7, 0.01))
+    finally:
+        ctx["port"].close()
+
+
 def run_demo(db_path: Path, progress=None) -> dict:
-    """Earlier visits, then today's captures, into a fresh database at
-    db_path. Returns today's summaries and every tube's assessment."""
+    """Calibration, earlier visits, then today's captures, into a fresh
+    database at db_path. Returns today's summaries and every tube's
+    assessment."""
     if db_path.exists():
         db_path.unlink()
+    state_dir = db_path.with_name(db_path.stem + "-tester")
+    shutil.rmtree(state_dir, ignore_errors=True)
+    state_dir.mkdir(parents=True)
+    if progress:
+        progress(0, 0, None, "calibration")
+    cal = _calibrate(state_dir)
+    tester = dict(TESTER, state_dir=str(state_dir))
     today = datetime.now(timezone.utc)
     jobs = []
     for t in DEMO_TUBES:
         for n, (days, change) in enumerate(t.history):
             when = (today - timedelta(days=days)).isoformat(timespec="milliseconds")
-            jobs.append((t, dict(t.sim, seed=t.sim["seed"] * 100 + n, **change), when))
-    jobs += [(t, t.sim, None) for t in DEMO_TUBES]
+            jobs.append((t, dict(t.sim, seed=t.sim["seed"] * 100 + n, **change, **tester), when))
+    jobs += [(t, dict(t.sim, **tester), None) for t in DEMO_TUBES]
     rows = []
     with Store(db_path) as store:
+        store.save_calibration(cal)
         _record(store)
         for n, (t, sim, when) in enumerate(jobs, 1):
             if progress:
@@ -101,4 +137,4 @@ def run_demo(db_path: Path, progress=None) -> dict:
         tubes = scoring.assess_fleet(store, config.load())
     for r in rows:
         r["stored_bytes"] = stored[r["uuid"]]["sample_bytes"]
-    return {"captures": rows, "tubes": tubes}
+    return {"captures": rows, "tubes": tubes, "calibration": cal}
