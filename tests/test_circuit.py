@@ -4,7 +4,6 @@ ratings in schematics/parts.csv."""
 
 import csv
 import json
-import math
 
 import pytest
 

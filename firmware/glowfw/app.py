@@ -3,7 +3,8 @@
 import json
 
 from glowfw import VERSION, measure, proto, supervisor
-from glowfw.capture import Capture, CaptureError, parse_params
+from glowfw.capture import Capture, parse_params
+from glowfw.params import ParamError
 from glowfw.link import Link
 from glowfw.supervisor import Supervisor
 
@@ -55,7 +56,7 @@ class App:
                 return
             try:
                 params = parse_params(json.loads(bytes(body)), self.board)
-            except (ValueError, CaptureError) as e:
+            except (ValueError, ParamError) as e:
                 self.reply(seq, False, str(e))
                 return
             self.reply(seq, True)
@@ -66,7 +67,7 @@ class App:
                 return
             try:
                 p = measure.parse(json.loads(bytes(body)), self.board)
-            except (ValueError, measure.MeasureError) as e:
+            except (ValueError, ParamError) as e:
                 self.reply(seq, False, str(e))
                 return
             result = measure.run(self.board, p)

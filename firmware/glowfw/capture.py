@@ -5,6 +5,7 @@ import struct
 import time
 
 from glowfw import proto, schedule, supervisor
+from glowfw.params import ParamError, merge
 from glowfw.settle import SettleDetector
 
 SECTION_MASKS = {"A": 1, "B": 2, "AB": 3}
@@ -23,16 +24,12 @@ DEFAULTS = {
 }
 
 
-class CaptureError(Exception):
+class CaptureError(ParamError):
     pass
 
 
 def parse_params(raw, board):
-    p = dict(DEFAULTS)
-    for k in raw:
-        if k not in p:
-            raise CaptureError("unknown capture parameter: " + k)
-        p[k] = raw[k]
+    p = merge(DEFAULTS, raw, "capture")
     if p["section"] not in SECTION_MASKS:
         raise CaptureError("section must be A, B or AB")
     if p["section"] != "A" and "ib" not in board.channels:

@@ -5,6 +5,7 @@ import array
 import time
 
 from glowfw.capture import SECTION_MASKS
+from glowfw.params import ParamError, merge
 
 MAX_SETS = 400
 MAX_ON_US = 500000
@@ -12,16 +13,12 @@ DEFAULTS = {"section": "", "range": "low", "sets": 100, "interval_us": 1000,
             "oversample": 16, "settle_ms": 20}
 
 
-class MeasureError(Exception):
+class MeasureError(ParamError):
     pass
 
 
 def parse(raw, board):
-    p = dict(DEFAULTS)
-    for k in raw:
-        if k not in p:
-            raise MeasureError("unknown measure parameter: " + k)
-        p[k] = raw[k]
+    p = merge(DEFAULTS, raw, "measure")
     if p["section"] not in ("", "A", "B", "AB"):
         raise MeasureError("section must be '', A, B or AB")
     if p["range"] not in board.ranges:

@@ -103,3 +103,27 @@ def test_bad_parameters_are_refused():
     rep = json.loads(bytes(by_type(frames_out(b), proto.REPLY)[0][2]))
     assert rep["to"] == 7 and rep["ok"] is False and "section" in rep["msg"]
     assert app.pending is None and b.mask == 0
+
+
+def test_measure_reads_and_switches_off():
+    from glowfw import measure
+    b = FakeBoard(amps=1.0)
+    p = measure.parse({"section": "A", "sets": 50}, b)
+    r = measure.run(b, p)
+    assert r["sets"] == 50 and not r["tripped"] and b.mask == 0
+    want = int(1.0 / 3.3 * 4096)
+    assert abs(r["means"][0] - want) < 1 and r["means"][1] == 0 and r["stds"][0] == 0
+
+
+def test_measure_trips_on_a_short_and_refuses_long_or_unknown():
+    from glowfw import measure
+    from glowfw.params import ParamError
+    b = FakeBoard(short=True)
+    r = measure.run(b, measure.parse({"section": "AB"}, b))
+    assert r["tripped"] and b.mask == 0
+    for bad in ({"sets": 400, "interval_us": 5000}, {"colour": 1}, {"section": "C"}):
+        try:
+            measure.parse(bad, b)
+        except ParamError:
+            continue
+        raise AssertionError("accepted " + repr(bad))
