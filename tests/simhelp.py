@@ -3,9 +3,7 @@
 from contextlib import contextmanager
 from urllib.parse import urlencode
 
-from glowtrace.link import Link
-from glowtrace.tester import Tester
-from glowtrace.transport import open_port
+from glowtrace.tester import connect
 
 
 def sim_url(**settings) -> str:
@@ -14,10 +12,5 @@ def sim_url(**settings) -> str:
 
 @contextmanager
 def sim_tester(**settings):
-    port = open_port(sim_url(**settings))
-    try:
-        tester = Tester(Link(port), "sim")
-        tester.identify()
+    with connect(sim_url(**settings)) as tester:
         yield tester
-    finally:
-        port.close()

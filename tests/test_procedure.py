@@ -31,7 +31,7 @@ def test_link_dropped_mid_capture_is_recorded(db_path):
     class progress:
         port = None
 
-    import glowtrace.procedure as proc
+    import glowtrace.tester as proc  # where the procedure's port is opened
     real_open = proc.open_port
 
     def spying_open(url):

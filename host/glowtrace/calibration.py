@@ -19,6 +19,7 @@ and for the high range the drift between the two low readings.
 """
 
 import math
+from contextlib import ExitStack, contextmanager
 from dataclasses import dataclass
 from datetime import datetime, timedelta, timezone
 
@@ -147,6 +148,27 @@ def solve(fe: dict, sections: tuple, supply_v: float, meter_tol: float, ref: Ref
             "board": board, "supply_v": supply_v, "meter_tolerance": meter_tol,
             "reference": {"ohms": ref.ohms, "tolerance": ref.tolerance},
             "channels": chans}
+
+
+@contextmanager
+def fixture_testers(url_for_step, before_step=None):
+    """A get_tester for run(): before_step(step) lets a person set the
+    fixture up; the tester at url_for_step(step) is connected anew whenever
+    that URL changes (a simulated socket), and kept otherwise."""
+    from .tester import connect
+    with ExitStack() as stack:
+        current = {"url": None, "tester": None}
+
+        def get_tester(step):
+            if before_step:
+                before_step(step)
+            url = url_for_step(step)
+            if url != current["url"]:
+                stack.close()
+                current["tester"] = stack.enter_context(connect(url))
+                current["url"] = url
+            return current["tester"]
+        yield get_tester
 
 
 def run(get_tester, supply_v: float, meter_tol: float, ref: Reference,

@@ -1,12 +1,12 @@
 """Tester commands: which socket to use, calibration, self-test, firmware."""
 
-from urllib.parse import parse_qsl, urlencode, urlsplit
-
 from rich.table import Table
 
 from . import catalogue
 from .cli_common import _db, _emit, err, out
 from .errors import GlowtraceError
+from .sim import with_load
+from .tester import connect
 
 
 def cmd_socket(args) -> int:
@@ -25,26 +25,6 @@ def cmd_socket(args) -> int:
     return 0
 
 
-def _sim_step_url(port: str, load_ohm: float | None) -> str:
-    """A glowsim:// URL with the fixture of a calibration or self-test step:
-    the simulated socket holds the given resistor (None: nothing)."""
-    parts = urlsplit(port)
-    q = dict(parse_qsl(parts.query))
-    q["load_ohm"] = str(load_ohm if load_ohm is not None else 1e9)
-    return "glowsim://?" + urlencode(q)
-
-
-def _open_tester(url: str):
-    from .link import Link
-    from .tester import Tester
-    from .transport import open_port
-    p = open_port(url)
-    t = Tester(Link(p), url)
-    t.link.drain()
-    t.identify()
-    return p, t
-
-
 def cmd_calibrate(args) -> int:
     from . import calibration
     from .ports import find_tester
@@ -54,7 +34,6 @@ def cmd_calibrate(args) -> int:
     if not 1.0 <= args.supply_v <= 30.0:
         raise GlowtraceError("--supply-v is your meter's reading of the heater supply, 1..30 V")
     simulated = port.startswith("glowsim://")
-    state = {"port": None, "tester": None}
     loads = {"open": None, "reference": args.ref}
     steps = {
         "open": "Leave the socket EMPTY (no tube, no resistor). Both sections will be "
@@ -65,24 +44,16 @@ def cmd_calibrate(args) -> int:
                      "short, firm leads.",
     }
 
-    def get_tester(step):
+    def before_step(step):
         if not args.json:
             out.print(f"[bold]Step '{step}':[/] {steps[step]}")
-        if simulated:  # the simulated socket is set up by the URL
-            if state["port"] is not None:
-                state["port"].close()
-            state["port"], state["tester"] = _open_tester(_sim_step_url(port, loads[step]))
-        else:
-            if state["tester"] is None:
-                state["port"], state["tester"] = _open_tester(port)
-            if not args.yes:
-                input("Press Enter when ready (Ctrl-C to stop)... ")
-        return state["tester"]
-    try:
+        if not simulated and not args.yes:
+            input("Press Enter when ready (Ctrl-C to stop)... ")
+
+    def url_for_step(step):  # the simulated socket is set up by the URL
+        return with_load(port, loads[step]) if simulated else port
+    with calibration.fixture_testers(url_for_step, before_step) as get_tester:
         cal = calibration.run(get_tester, args.supply_v, args.meter_tol / 100, ref)
-    finally:
-        if state["port"] is not None:
-            state["port"].close()
     with Store(_db(args)) as store:
         store.save_calibration(cal)
 
@@ -104,22 +75,19 @@ def cmd_selftest(args) -> int:
     from .ports import find_tester
     port = args.port or find_tester()
     if port.startswith("glowsim://"):
-        port = _sim_step_url(port, args.load_ohm)
+        port = with_load(port, args.load_ohm)
     elif not args.yes and not args.json:
         out.print(f"Fit the {args.load_ohm:g} ohm dummy load across section A (and section "
                   "B for a dual socket). It carries about an amp: use a power resistor.")
         input("Press Enter when ready... ")
-    p, t = _open_tester(port)
-    try:
-        def show(c):
-            if not args.json:
-                mark = "[green]ok[/]  " if c.ok else "[red]FAIL[/]"
-                out.print(f"{mark} {c.name}: {c.detail}")
-                if not c.ok and c.advice:
-                    out.print(f"      -> {c.advice}")
+    def show(c):
+        if not args.json:
+            mark = "[green]ok[/]  " if c.ok else "[red]FAIL[/]"
+            out.print(f"{mark} {c.name}: {c.detail}")
+            if not c.ok and c.advice:
+                out.print(f"      -> {c.advice}")
+    with connect(port) as t:
         checks = selftest.run(t, args.load_ohm, show)
-    finally:
-        p.close()
     failed = [c for c in checks if not c.ok]
     if args.json:
         _emit(args, {"passed": not failed, "checks": [c.as_dict() for c in checks]}, None)

@@ -12,10 +12,8 @@ from urllib.parse import urlencode
 
 from . import config, records, scoring
 from .convert import summary
-from .link import Link
 from .procedure import run_capture
-from .tester import Tester
-from .transport import open_port
+from .sim import with_load
 from .store import Store
 
 SHOP = "Kestrel Street Valve Bench (an invented repair shop)"
@@ -83,21 +81,11 @@ TESTER = {"serial": "KS01"}  # the shop has one tester; every visit uses it
 def _calibrate(state_dir: Path) -> dict:
     """The shop calibrates its (simulated) tester first: socket empty, then a
     4.7 ohm reference in each section; the result stays on the board."""
-    from .calibration import Reference, run
-    ctx = {}
-
-    def get_tester(step):
-        if "port" in ctx:
-            ctx["port"].close()
-        load = 4.7 if step == "reference" else 1e9
-        ctx["port"] = open_port(demo_url(dict(TESTER, state_dir=str(state_dir), load_ohm=load)))
-        ctx["tester"] = Tester(Link(ctx["port"]), "demo")
-        ctx["tester"].identify()
-        return ctx["tester"]
-    try:
+    from .calibration import Reference, fixture_testers, run
+    url = demo_url(dict(TESTER, state_dir=str(state_dir)))
+    with fixture_testers(lambda step: with_load(url, 4.7 if step == "reference" else None)) \
+            as get_tester:
         return run(get_tester, supply_v=6.3, meter_tol=0.005, ref=Reference(4.7, 0.01))
-    finally:
-        ctx["port"].close()
 
 
 def run_demo(db_path: Path, progress=None) -> dict:

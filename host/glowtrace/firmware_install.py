@@ -67,22 +67,13 @@ def mpremote_commands(port: str, files: list[tuple[Path, str]]) -> list[list[str
 
 def _leave_firmware(port: str) -> bool:
     """Ask running glowtrace firmware to reboot to the REPL; False if none answers."""
-    from .link import Link
-    from .tester import Tester
-    from .transport import open_port
+    from .tester import connect
     try:
-        p = open_port(port)
+        with connect(port, timeout=1.5, tries=1) as t:
+            t.enter_repl()
+            return True
     except GlowtraceError:
         return False
-    try:
-        t = Tester(Link(p), port)
-        t.identify(timeout=1.5, tries=1)
-        t.enter_repl()
-        return True
-    except GlowtraceError:
-        return False
-    finally:
-        p.close()
 
 
 def install(port: str, run=subprocess.run, settle_s: float = 3.0, handshake=None,

@@ -4,9 +4,7 @@ of those answer as glowtrace firmware."""
 from serial.tools import list_ports
 
 from .errors import GlowtraceError, LinkError
-from .link import Link
-from .tester import Tester
-from .transport import open_port
+from .tester import connect
 
 RP2_MICROPYTHON = (0x2E8A, 0x0005)  # USB VID:PID of MicroPython on RP2040/RP2350
 
@@ -14,16 +12,10 @@ RP2_MICROPYTHON = (0x2E8A, 0x0005)  # USB VID:PID of MicroPython on RP2040/RP235
 def probe(device: str, timeout: float = 1.5) -> dict | None:
     """The tester's handshake on this port, or None if nothing answers."""
     try:
-        port = open_port(device)
-    except LinkError:
-        return None
-    try:
-        tester = Tester(Link(port), device)
-        return tester.identify(timeout=timeout, tries=2)
+        with connect(device, timeout=timeout, tries=2) as tester:
+            return tester.hello
     except GlowtraceError:
         return None
-    finally:
-        port.close()
 
 
 def scan(probe_boards: bool = True) -> list[dict]:

@@ -9,11 +9,9 @@ from . import catalogue
 from .analysis.runner import analyze_stored
 from .capture import RawCapture
 from .errors import GlowtraceError
-from .link import Link
 from .sockets import check_for_tester
 from .store import Store
-from .tester import CaptureInterrupted, Tester
-from .transport import open_port
+from .tester import CaptureInterrupted, connect
 
 
 class UserInterrupt(KeyboardInterrupt):
@@ -30,32 +28,29 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
                 notes: str | None = None, started_at: str | None = None) -> RawCapture:
     """started_at: back-dates the capture (only the demo uses it, to lay down
     its invented earlier visits)."""
-    port = open_port(port_url)
-    tester = Tester(Link(port), port_url)
-    try:
-        tester.link.drain()
-        hello = tester.identify()
-        if tube_type:
-            # refuse before switching on if this tester cannot wire the type
-            check_for_tester(catalogue.load().get(tube_type), section, hello["frontend"])
+    with connect(port_url) as tester:
         try:
-            raw = tester.capture(tube, section, params or {}, progress)
-        except CaptureInterrupted as e:
-            raw = e.raw
-            raw.incomplete_reason = e.reason
-        if started_at:
-            raw.started_at = started_at
-        store.save_capture(raw, tube_type=tube_type, notes=notes)
-        try:
-            raw.analysis = analyze_stored(store, raw.uuid)
-        except (GlowtraceError, ValueError) as e:
-            # the raw capture is safe; `glowtrace reanalyze` can try again
-            raw.analysis = {"warnings": [f"analysis failed: {e}"]}
-        if raw.incomplete_reason == "interrupted by the user":
-            stop = UserInterrupt(raw)
-            stop.off_confirmed = tester.ensure_off()
-            raise stop
-        return raw
-    finally:
-        tester.abort()  # idempotent on the firmware: heater off, whatever state
-        port.close()
+            if tube_type:
+                # refuse before switching on if this tester cannot wire the type
+                check_for_tester(catalogue.load().get(tube_type), section,
+                                 tester.hello["frontend"])
+            try:
+                raw = tester.capture(tube, section, params or {}, progress)
+            except CaptureInterrupted as e:
+                raw = e.raw
+                raw.incomplete_reason = e.reason
+            if started_at:
+                raw.started_at = started_at
+            store.save_capture(raw, tube_type=tube_type, notes=notes)
+            try:
+                raw.analysis = analyze_stored(store, raw.uuid)
+            except (GlowtraceError, ValueError) as e:
+                # the raw capture is safe; `glowtrace reanalyze` can try again
+                raw.analysis = {"warnings": [f"analysis failed: {e}"]}
+            if raw.incomplete_reason == "interrupted by the user":
+                stop = UserInterrupt(raw)
+                stop.off_confirmed = tester.ensure_off()
+                raise stop
+            return raw
+        finally:
+            tester.abort()  # idempotent on the firmware: heater off, whatever state

@@ -8,7 +8,7 @@ import pty
 import subprocess
 import tempfile
 import tty
-from urllib.parse import parse_qsl
+from urllib.parse import parse_qsl, urlencode, urlsplit
 
 from . import paths
 from .errors import GlowtraceError
@@ -58,6 +58,15 @@ def build_scenario(**settings) -> dict:
     scenario["frontend_path"] = str(paths.require(paths.FRONTEND_PATH))
     scenario["tungsten_path"] = str(paths.require(paths.TUNGSTEN_PATH))
     return scenario
+
+
+def with_load(url: str, load_ohm: float | None) -> str:
+    """The same glowsim:// URL with a resistor in the simulated socket (None:
+    the socket empty), the fixture of a calibration or self-test step."""
+    parts = urlsplit(url)
+    q = dict(parse_qsl(parts.query))
+    q["load_ohm"] = str(load_ohm if load_ohm is not None else 1e9)
+    return "glowsim://?" + urlencode(q)
 
 
 def parse_settings(query: str) -> dict:

@@ -3,11 +3,13 @@ message flow of one capture. Transport and storage are elsewhere."""
 
 import json
 import time
+from contextlib import contextmanager
 
 from . import protocol
 from .capture import RawCapture
 from .errors import DeviceError, GlowtraceError, LinkError
 from .link import Link
+from .transport import open_port
 
 HEARTBEAT_S = 0.4      # the firmware trips after 2 s of silence by default
 SILENT_DEVICE_S = 5.0  # no frame at all for this long: the link is lost
@@ -20,6 +22,20 @@ class CaptureInterrupted(Exception):
         super().__init__(reason)
         self.reason = reason
         self.raw = raw
+
+
+@contextmanager
+def connect(url: str, timeout: float = 3.0, tries: int = 3):
+    """Open a port, drop stale frames, and yield the identified Tester; the
+    port is closed on the way out."""
+    port = open_port(url)
+    try:
+        tester = Tester(Link(port), url)
+        tester.link.drain()
+        tester.identify(timeout=timeout, tries=tries)
+        yield tester
+    finally:
+        port.close()
 
 
 class Tester:
