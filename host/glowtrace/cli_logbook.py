@@ -164,7 +164,6 @@ def cmd_history(args) -> int:
 
 
 def render_history(r: dict) -> None:
-    from .scoring import LABELS
     t = Table("date", "s", *[c[1] for c in METRIC_COLS], "room C", "cold",
               "scored", title=f"{r['tube']} ({r['type'] or 'type unknown'})"
               + (f", owner {r['owner']}" if r["owner"] else ""),
@@ -185,7 +184,6 @@ def render_history(r: dict) -> None:
               + (f"   grade: [bold]{r['grade']}[/]" if r["grade"] else ""))
     for reason in r["reasons"]:
         out.print(f"  - {reason}")
-    _ = LABELS
 
 
 def trend_plots(r: dict, width: int = 60, height: int = 9) -> str:

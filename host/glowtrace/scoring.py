@@ -5,6 +5,7 @@ Reads only the `section_metrics` table (one row per capture and section, the
 newest analysis version of each), so a whole fleet is scored without parsing
 a single analysis document. Settings: config.py (data/scoring.toml)."""
 
+import json
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta, timezone
 
@@ -213,7 +214,6 @@ def load_rows(store: Store, tube: str | None = None) -> dict:
 
 
 def load_baselines(store: Store, tube: str | None = None) -> dict:
-    import json
     sql = "SELECT tube, section, captures FROM baselines" + (" WHERE tube = ?" if tube else "")
     return {(t, s): json.loads(c) for t, s, c in
             store.db.execute(sql, [tube] if tube else []).fetchall()}
@@ -232,13 +232,11 @@ def type_population(store: Store, type_name: str) -> dict:
     return {m: [r[3 + k] for r in rows if r[3 + k] is not None] for k, m in enumerate(METRICS)}
 
 
-def _population(rows, cols) -> dict:
-    latest = {}
-    for r in rows:
-        d = dict(zip(cols, r))
-        latest[(d["tube"], d["section"])] = d  # rows come in time order
-    pop = {m: [d[m] for d in latest.values() if d[m] is not None] for m in METRICS}
-    return pop
+def _population(rows) -> dict:
+    """Per metric, the newest value of each tube section among these rows
+    (they come in time order)."""
+    latest = {(r["tube"], r["section"]): r for r in rows}
+    return {m: [r[m] for r in latest.values() if r[m] is not None] for m in METRICS}
 
 
 def percentile(value: float, population: list[float]) -> float:
@@ -355,25 +353,27 @@ def grade(result: dict, cfg: dict) -> str | None:
     return cfg["grade_none"]["name"]
 
 
-def assess_tube(store: Store, label: str, cfg: dict) -> dict:
+def assess_tube(store: Store, label: str, cfg: dict, rows: dict | None = None) -> dict:
+    """rows: the tube's section rows, if the caller has loaded them already."""
     from .records import require_tube
     tube = require_tube(store, label)
-    rows = load_rows(store, label).get(label, {})
+    if rows is None:
+        rows = load_rows(store, label).get(label, {})
     pop = type_population(store, tube["type"]) if tube["type"] else None
     return assess(tube, rows, cfg, load_baselines(store, label), pop)
 
 
 def history(store: Store, label: str, cfg: dict) -> dict:
     """The assessment plus every capture of the tube with its analysis."""
-    import json
-    result = assess_tube(store, label, cfg)
+    section_rows = load_rows(store, label).get(label, {})
+    result = assess_tube(store, label, cfg, section_rows)
     rows = store.db.execute(
         "SELECT c.uuid, c.started_at, c.section, c.source, c.complete, c.incomplete_reason, "
         "(SELECT result FROM analyses a WHERE a.capture_uuid = c.uuid "
         " ORDER BY a.version DESC LIMIT 1) FROM captures c WHERE c.tube = ? "
         "ORDER BY c.started_at, c.uuid", [label]).fetchall()
     excluded = {(r["capture_uuid"], sec): r for sec, rs in
-                load_rows(store, label).get(label, {}).items() for r in rs}
+                section_rows.items() for r in rs}
     caps = []
     for uuid, at, section, source, complete, why, res in rows:
         analysis = json.loads(res) if res else {}
@@ -392,17 +392,16 @@ def history(store: Store, label: str, cfg: dict) -> dict:
 def assess_fleet(store: Store, cfg: dict, type_name: str | None = None,
                  owner: str | None = None) -> list[dict]:
     from .records import list_tubes
-    tubes = list_tubes(store, owner=owner, type_name=type_name)
+    everyone = list_tubes(store)
+    tubes = list_tubes(store, owner=owner, type_name=type_name) if owner or type_name \
+        else everyone
     rows = load_rows(store)
     baselines = load_baselines(store)
-    cols = [d[0] for d in store.db.execute("SELECT * FROM section_metrics LIMIT 0").description]
-    pops: dict = {}
     by_type: dict = {}
-    for t in list_tubes(store):
+    for t in everyone:
         by_type.setdefault(t["type"], []).append(t["label"])
-    for tname, labels in by_type.items():
-        flat = [tuple(r[c] for c in cols) for lbl in labels
-                for sec_rows in rows.get(lbl, {}).values() for r in sec_rows if r["scored"]]
-        pops[tname] = _population(flat, cols)
+    pops = {tname: _population(r for lbl in labels for sec_rows in rows.get(lbl, {}).values()
+                               for r in sec_rows if r["scored"])
+            for tname, labels in by_type.items()}
     return [assess(t, rows.get(t["label"], {}), cfg, baselines, pops.get(t["type"]))
             for t in tubes]

@@ -27,8 +27,9 @@ def _tube_type(store: Store, label: str | None, notes: list):
     return None
 
 
-def analyze_stored(store: Store, uuid: str) -> dict:
-    """Analyse one stored capture with its tube's type and history; store it."""
+def analyze_stored(store: Store, uuid: str, max_cal_age: float | None = None) -> dict:
+    """Analyse one stored capture with its tube's type and history; store it.
+    max_cal_age: days a calibration stays good (default: the scoring settings)."""
     if store.capture_source(uuid) == "import":
         return _analyze_imported(store, uuid)
     raw = store.load_capture(uuid)
@@ -43,7 +44,9 @@ def analyze_stored(store: Store, uuid: str) -> dict:
         result = analyze_capture(raw, tube_type, history)
     if not raw.complete:
         notes.append(f"capture incomplete ({raw.incomplete_reason}): figures may be partial")
-    stale = age_warning(raw.hello.get("calibration"), raw.started_at, _max_cal_age())
+    if max_cal_age is None:
+        max_cal_age = _max_cal_age()
+    stale = age_warning(raw.hello.get("calibration"), raw.started_at, max_cal_age)
     if stale:
         notes.append(stale)
     if notes:
@@ -76,8 +79,9 @@ def reanalyze(store: Store, force: bool = False, progress=None) -> list[str]:
     """Run the current analysis on every capture that lacks it (all with
     force), oldest first so each sees its own history."""
     todo = store.uuids_needing_analysis(ANALYSIS_VERSION, force)
+    max_age = _max_cal_age()  # the settings once, not once per capture
     for n, uuid in enumerate(todo, 1):
-        analyze_stored(store, uuid)
+        analyze_stored(store, uuid, max_age)
         if progress:
             progress(n, len(todo))
     return todo

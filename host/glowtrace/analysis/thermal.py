@@ -29,7 +29,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from scipy.optimize import least_squares
 
-from ..physics.tungsten import FastRatio, HeaterWire
+from ..physics.tungsten import HeaterWire, fast_ratio
 
 
 @dataclass
@@ -47,7 +47,7 @@ class ThermalModel:
 
     # derived constants ---------------------------------------------------
     def constants(self):
-        a = FastRatio(HeaterWire(self.k))
+        a = fast_ratio(self.k)
         wire = HeaterWire(self.k)
         t_hot = float(wire.temperature(self.r_hot / self.r20))
         ta = self.t_amb_k

@@ -115,3 +115,10 @@ class FastRatio:
         elif i > self.n:
             i = self.n
         return self.r[i] + (t - self.t0 - i * self.step) * self.slope[i]
+
+
+@lru_cache(maxsize=16)
+def fast_ratio(k: float) -> FastRatio:
+    """The FastRatio of an alloy factor, built once: the thermal fit asks for
+    it at every evaluation of its model."""
+    return FastRatio(HeaterWire(k))
