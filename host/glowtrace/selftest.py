@@ -48,7 +48,6 @@ class Readings:
 
 def _link(t: Tester) -> list[Check]:
     out = []
-    t0 = time.monotonic()
     worst = 0.0
     for _ in range(10):
         s = time.monotonic()
@@ -56,7 +55,6 @@ def _link(t: Tester) -> list[Check]:
         worst = max(worst, time.monotonic() - s)
     out.append(Check("link round trip", worst < 0.5, f"10 status requests, slowest "
                      f"{1000 * worst:.0f} ms", "a slow or lossy USB link: try another cable or port"))
-    _ = t0
     t.link.port.write(b"\x13\x37 not a frame \xff\x00")
     try:
         t.status()
