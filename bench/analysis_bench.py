@@ -24,7 +24,7 @@ from glowtrace import catalogue  # noqa: E402
 from glowtrace.analysis.analyze import analyze_curve  # noqa: E402
 from glowtrace.analysis.curve import from_capture  # noqa: E402
 from glowtrace.analysis.thermal import ThermalModel  # noqa: E402
-from glowtrace.physics.tungsten import HeaterWire  # noqa: E402
+from glowtrace.analysis.physics.tungsten import HeaterWire  # noqa: E402
 from simhelp import sim_tester  # noqa: E402
 
 

@@ -17,12 +17,12 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "host"))
 
-from glowtrace import protocol  # noqa: E402
-from glowtrace.capture import RawCapture  # noqa: E402
-from glowtrace.link import Link  # noqa: E402
-from glowtrace.store import Store  # noqa: E402
-from glowtrace.tester import Tester  # noqa: E402
-from glowtrace.transport import open_port  # noqa: E402
+from glowtrace.tester import protocol  # noqa: E402
+from glowtrace.tester.raw import RawCapture  # noqa: E402
+from glowtrace.tester.link import Link  # noqa: E402
+from glowtrace.logbook.store import Store  # noqa: E402
+from glowtrace.tester.driver import Tester  # noqa: E402
+from glowtrace.tester.transport import open_port  # noqa: E402
 
 URL = "glowsim://?tube=12AX7&flash_b=0.1"
 

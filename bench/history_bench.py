@@ -26,14 +26,15 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT / "host"))
 sys.path.insert(0, str(ROOT / "tests"))
 
-from glowtrace import config, scoring  # noqa: E402
-from glowtrace.store import Store, metric_rows  # noqa: E402
+from glowtrace import config
+from glowtrace.judgement import scoring  # noqa: E402
+from glowtrace.logbook.store import Store, metric_rows  # noqa: E402
 
 TYPES = [("12AX7", 6.2, 0.15), ("12AU7", 6.4, 0.15), ("EL84", 1.3, 0.76), ("6V6", 2.4, 0.45)]
 
 
 def sample_blob() -> tuple[bytes, bytes]:
-    from glowtrace import samples_codec
+    from glowtrace.logbook import samples_codec
     from simhelp import sim_tester
     with sim_tester(seed=1) as t:
         raw = t.capture("B", "A", {})

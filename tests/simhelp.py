@@ -3,7 +3,7 @@
 from contextlib import contextmanager
 from urllib.parse import urlencode
 
-from glowtrace.tester import connect
+from glowtrace.tester.driver import connect
 
 
 def sim_url(**settings) -> str:

@@ -10,7 +10,7 @@ import pytest
 from glowtrace import catalogue
 from glowtrace.analysis.analyze import analyze_capture, analyze_curve
 from glowtrace.analysis.curve import Curve
-from glowtrace.csvio import CurveFileError, read_curve, write_curve
+from glowtrace.analysis.csvio import CurveFileError, read_curve, write_curve
 from curves import constant, first_order
 from simhelp import sim_tester
 

@@ -11,9 +11,9 @@ from glowtrace.analysis import ANALYSIS_VERSION
 from glowtrace.analysis.curve import from_capture
 from glowtrace.analysis.runner import reanalyze
 from glowtrace.cli import main
-from glowtrace.csvio import write_curve
-from glowtrace.procedure import run_capture
-from glowtrace.store import Store
+from glowtrace.analysis.csvio import write_curve
+from glowtrace.procedures.capture import run_capture
+from glowtrace.logbook.store import Store
 from curves import first_order
 from simhelp import sim_url
 

@@ -6,7 +6,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from glowtrace import charts
+from glowtrace.judgement import charts
 
 # Montgomery, Introduction to Statistical Quality Control, tabular CUSUM example
 # (Table 9.1; 30 observations, the first 20 from N(10, 1), the last 10 after a

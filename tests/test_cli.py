@@ -16,11 +16,8 @@ def run(*args, timeout=120):
                           timeout=timeout)
 
 
-def test_demo_end_to_end(tmp_path):
-    db = tmp_path / "demo.db"
-    r = run("demo", "--db", str(db), "--json")
-    assert r.returncode == 0, r.stderr
-    out = json.loads(r.stdout)
+def test_demo_end_to_end(demo_run):
+    db, out = demo_run
     caps = out["captures"]
     assert len(caps) == 6 and all(c["complete"] for c in caps)
     assert {c["type"] for c in caps} >= {"12AX7", "6V6", "5U4GB"}
@@ -33,10 +30,10 @@ def test_demo_end_to_end(tmp_path):
     rows = json.loads(r.stdout)
     assert {c["uuid"] for c in caps} <= {x["uuid"] for x in rows} and len(rows) == 14
     judged = {t["tube"]: t for t in out["tubes"]}
-    assert judged["KS-0117-V1"]["status"] == "steady"
-    assert judged["KS-0117-V2"]["status"] in ("at limit", "drifting")
-    assert "flash index" in judged["KS-0117-V2"]["reasons"][0]
-    assert judged["KS-0117-V2"]["owner"] == "Orla Venn"
+    assert judged["QW-0117-V1"]["status"] == "steady"
+    assert judged["QW-0117-V2"]["status"] in ("at limit", "drifting")
+    assert "flash index" in judged["QW-0117-V2"]["reasons"][0]
+    assert judged["QW-0117-V2"]["owner"] == "Ysolde Marrin"
 
 
 def test_capture_list_show_through_the_cli(tmp_path, capsys):

@@ -6,8 +6,9 @@ from pathlib import Path
 
 import pytest
 
-from glowtrace import calibration, catalogue, firmware_install, paths, sockets
-from glowtrace.calibration import gain_offset, nominal_scale
+from glowtrace.tester import calibration, firmware as firmware_install, sockets
+from glowtrace import catalogue, paths
+from glowtrace.tester.calibration import gain_offset, nominal_scale
 from glowtrace.cli import main
 from glowtrace.errors import GlowtraceError, SetupError
 from simhelp import sim_tester
@@ -73,7 +74,7 @@ def test_calibrate_command_stores_and_captures_use_it(tmp_path, capsys, monkeypa
                  "--db", db, "--json"]) == 0
     cap = json.loads(capsys.readouterr().out)
     assert not any("calibrat" in w for w in cap["analysis"]["A"]["warnings"] + cap.get("warnings", []))
-    from glowtrace.store import Store
+    from glowtrace.logbook.store import Store
     with Store(db) as s:
         assert s.calibrations()[0]["at"] == cal["at"]
         raw = s.load_capture(cap["uuid"])

@@ -6,10 +6,12 @@ import sqlite3
 import numpy as np
 import pytest
 
-from glowtrace import config, scoring, store as store_mod
+from glowtrace import config
+from glowtrace.judgement import scoring
+from glowtrace.logbook import store as store_mod
 from glowtrace.cli import main
-from glowtrace.csvio import write_curve
-from glowtrace.store import Store
+from glowtrace.analysis.csvio import write_curve
+from glowtrace.logbook.store import Store
 from curves import heater
 
 
@@ -188,7 +190,7 @@ def test_type_comparison_grade_and_user_settings(capsys, tmp_path, monkeypatch):
 
 
 def test_section_imbalance_from_a_dual_capture(capsys, tmp_path):
-    from glowtrace.procedure import run_capture
+    from glowtrace.procedures.capture import run_capture
     from simhelp import sim_url
     db = tmp_path / "dual.db"
     with Store(db) as s:
@@ -222,7 +224,7 @@ def test_report_export_and_merge(capsys, tmp_path):
 
 
 def test_migration_from_schema_2_backfills_metrics(tmp_path, monkeypatch):
-    from glowtrace.protocol import Block
+    from glowtrace.tester.protocol import Block
     from test_store import _raw
     db = tmp_path / "old.db"
     monkeypatch.setattr(store_mod, "MIGRATIONS", store_mod.MIGRATIONS[:2])

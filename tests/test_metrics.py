@@ -7,7 +7,7 @@ import pytest
 
 from glowtrace.analysis.analyze import analyze_curve, predict
 from glowtrace.analysis.curve import Curve
-from glowtrace.physics import tungsten
+from glowtrace.analysis.physics import tungsten
 from curves import constant, first_order
 
 

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from glowtrace.physics import tungsten as w
+from glowtrace.analysis.physics import tungsten as w
 
 
 def test_ratio_at_1000_k_and_2000_k():

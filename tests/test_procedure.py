@@ -2,8 +2,8 @@
 
 import pytest
 
-from glowtrace.procedure import UserInterrupt, run_capture
-from glowtrace.store import Store
+from glowtrace.procedures.capture import UserInterrupt, run_capture
+from glowtrace.logbook.store import Store
 from simhelp import sim_url
 
 
@@ -31,7 +31,7 @@ def test_link_dropped_mid_capture_is_recorded(db_path):
     class progress:
         port = None
 
-    import glowtrace.tester as proc  # where the procedure's port is opened
+    import glowtrace.tester.driver as proc  # where the procedure's port is opened
     real_open = proc.open_port
 
     def spying_open(url):

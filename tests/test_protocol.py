@@ -11,8 +11,8 @@ from cobs import cobs
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from glowtrace import protocol
-from glowtrace.link import Link
+from glowtrace.tester import protocol
+from glowtrace.tester.link import Link
 
 REPO = Path(__file__).resolve().parent.parent
 

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from glowtrace import paths
-from glowtrace.convert import to_physical
+from glowtrace.tester.convert import to_physical
 from simhelp import sim_tester
 
 sys.path.insert(0, str(paths.FIXTURES_DIR))

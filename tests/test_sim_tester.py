@@ -5,9 +5,9 @@ import time
 import numpy as np
 import pytest
 
-from glowtrace import protocol
-from glowtrace.convert import to_physical
-from glowtrace.tester import CaptureInterrupted
+from glowtrace.tester import protocol
+from glowtrace.tester.convert import to_physical
+from glowtrace.tester.driver import CaptureInterrupted
 from simhelp import sim_tester
 
 
@@ -132,8 +132,8 @@ def test_firmware_resynchronises_after_garbage_from_host():
 
 
 def test_probe_finds_glowtrace_on_a_port():
-    from glowtrace.ports import probe
-    from glowtrace.sim import SimTester, build_scenario
+    from glowtrace.tester.ports import probe
+    from glowtrace.tester.sim import SimTester, build_scenario
     with SimTester(build_scenario(serial="0777")) as sim:
         hello = probe(sim.path)
     assert hello["board"] == "sim-0777"

@@ -7,12 +7,12 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from glowtrace import samples_codec, store as store_mod
-from glowtrace.capture import RawCapture, blocks_equal
+from glowtrace.logbook import samples_codec, store as store_mod
+from glowtrace.tester.raw import RawCapture, blocks_equal
 from glowtrace.errors import StoreError
-from glowtrace.procedure import run_capture
-from glowtrace.protocol import Block
-from glowtrace.store import Store
+from glowtrace.procedures.capture import run_capture
+from glowtrace.tester.protocol import Block
+from glowtrace.logbook.store import Store
 from simhelp import sim_url
 
 
@@ -132,8 +132,8 @@ def test_killed_writer_leaves_database_consistent(db_path, tmp_path):
     import time
     script = tmp_path / "writer.py"
     script.write_text(
-        "import sys\nfrom glowtrace.store import Store\n"
-        "from glowtrace.capture import RawCapture\nfrom glowtrace.protocol import Block\n"
+        "import sys\nfrom glowtrace.logbook.store import Store\n"
+        "from glowtrace.tester.raw import RawCapture\nfrom glowtrace.tester.protocol import Block\n"
         "import numpy as np\n"
         "s = Store(sys.argv[1])\n"
         "data = np.arange(3000 * 3, dtype='<u2').tobytes()\n"

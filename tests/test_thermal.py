@@ -10,7 +10,7 @@ from glowtrace.analysis.analyze import analyze_capture, analyze_curve
 from glowtrace.analysis.curve import Curve
 from glowtrace.analysis.metrics import first_crossing
 from glowtrace.analysis.thermal import ThermalModel
-from glowtrace.physics.tungsten import HeaterWire
+from glowtrace.analysis.physics.tungsten import HeaterWire
 from curves import sample_times
 from simhelp import sim_tester
 

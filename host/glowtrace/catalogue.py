@@ -136,3 +136,20 @@ def load() -> Catalogue:
     """The built-in catalogue with the user's own types merged over it."""
     u = user_file()
     return _load(str(u) if u.exists() else None)
+
+
+def listing(cat: "Catalogue | None" = None) -> list[dict]:
+    """Every type as a plain record (what `glowtrace types` shows)."""
+    cat = cat or load()
+    rows = []
+    for name in cat.names():
+        t = cat.get(name)
+        sec = t.section_rating()
+        rows.append({"type": t.name, "aliases": list(t.aliases), "base": t.base,
+                     "series": [t.series.volts, t.series.amps] if t.series else None,
+                     "parallel": [t.parallel.volts, t.parallel.amps] if t.parallel else None,
+                     "heater": [t.heater.volts, t.heater.amps] if t.heater else None,
+                     "section_volts": sec.volts, "section_amps": sec.amps,
+                     "controlled_warmup_s": t.controlled_warmup_s, "filament": t.filament,
+                     "source": t.source})
+    return rows

@@ -40,12 +40,22 @@ def micropython_executable() -> str:
     return found
 
 
+def data_dir() -> Path:
+    """$XDG_DATA_HOME/glowtrace (~/.local/share/glowtrace)."""
+    base = os.environ.get("XDG_DATA_HOME") or Path.home() / ".local" / "share"
+    return Path(base) / "glowtrace"
+
+
 def default_db_path() -> Path:
     env = os.environ.get("GLOWTRACE_DB")
-    if env:
-        return Path(env)
-    base = os.environ.get("XDG_DATA_HOME") or Path.home() / ".local" / "share"
-    return Path(base) / "glowtrace" / "glowtrace.db"
+    return Path(env) if env else data_dir() / "glowtrace.db"
+
+
+def sim_state_dir(serial: str) -> Path:
+    """Where the simulated board with this serial keeps its flash (its
+    calibration), as a real board keeps it on its own flash."""
+    safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in serial)
+    return data_dir() / "sim" / (safe.lstrip(".") or "_")
 
 
 def user_config_file(env_var: str, name: str) -> Path:

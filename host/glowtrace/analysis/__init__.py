@@ -1,5 +1,10 @@
-"""Measuring a start-up curve: model-free metrics, a fitted thermal model,
-the flash indicator and predictions at rated conditions.
-docs/ANALYSIS.md says how every figure is computed."""
+"""The analysis: measuring a start-up curve (docs/ANALYSIS.md is its
+specification).
+
+Curves from a capture or a CSV file, model-free figures and warnings, the
+fitted thermal model and its tungsten physics (`physics/`), predictions at
+rated voltage, and the runner that analyses stored captures. It reads the
+logbook and the tester's raw captures, so it may import `logbook`, `tester` and
+the shared top-level modules; never judgement, outputs, procedures or cli."""
 
 ANALYSIS_VERSION = "1.0"

@@ -5,7 +5,7 @@ import math
 import numpy as np
 
 from ..catalogue import TubeType
-from ..physics.tungsten import ZERO_C_K, HeaterWire
+from .physics.tungsten import ZERO_C_K, HeaterWire
 from . import ANALYSIS_VERSION, thermal
 from .curve import Curve, from_capture
 from .metrics import TAIL_S, first_crossing, measure
@@ -130,3 +130,37 @@ def analyze_capture(raw, tube_type: TubeType | None = None,
     if ra and rb:
         out["section_imbalance"] = _sig(abs(ra - rb) / (0.5 * (ra + rb)))
     return out
+
+
+def analyze_file(path, ambient_c: float | None, type_name: str | None = None,
+                 rated_v: float | None = None, rated_a: float | None = None,
+                 fit_model: bool = True) -> tuple[Curve, dict]:
+    """A CSV curve from any instrument (`glowtrace analyze`): the options
+    checked, the file read, the curve measured. Returns (curve, result);
+    result["warnings"] starts with what was noticed about the file."""
+    from .. import catalogue
+    from .csvio import read_curve
+    from ..errors import GlowtraceError
+    if (rated_v is None) != (rated_a is None):
+        raise GlowtraceError("give both --rated-volts and --rated-amps, or --type")
+    if type_name and rated_v is not None:
+        raise GlowtraceError("give either --type or --rated-volts/--rated-amps, not both")
+    for x in (rated_v, rated_a):
+        if x is not None and x <= 0:
+            raise GlowtraceError("rated volts and amps must be positive")
+    tube_type = catalogue.load().get(type_name) if type_name else None
+    curve, notes = read_curve(path)
+    if ambient_c is None:
+        ambient_c = 20.0
+        notes.append("no --ambient-c given: 20 C assumed for the cold resistance")
+    elif not -40 <= ambient_c <= 80:
+        raise GlowtraceError("--ambient-c must be a room temperature in C (-40..80)")
+    try:
+        result = analyze_curve(curve, ambient_c, tube_type, rated_v, rated_a,
+                               fit_model=fit_model)
+    except ValueError as e:
+        raise GlowtraceError(f"{path}: {e}") from None
+    result["warnings"] = notes + result["warnings"]
+    if tube_type:
+        result["type"] = tube_type.name
+    return curve, result

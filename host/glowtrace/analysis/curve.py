@@ -5,8 +5,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..capture import RawCapture
-from ..convert import to_physical
+from ..tester.raw import RawCapture
+from ..tester.convert import to_physical
 
 
 @dataclass

@@ -10,7 +10,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..physics.tungsten import HeaterWire
+from .physics.tungsten import HeaterWire
 from .curve import Curve
 
 TAIL_S = 1.0           # the final state level is the mean over this last stretch

@@ -2,9 +2,9 @@
 analysis improves (`glowtrace reanalyze`)."""
 
 from .. import catalogue, config
-from ..calibration import age_warning
+from ..tester.calibration import age_warning
 from ..errors import GlowtraceError
-from ..store import Store
+from ..logbook.store import Store
 from . import ANALYSIS_VERSION
 from .analyze import analyze_capture, analyze_curve
 from .curve import Curve

@@ -29,7 +29,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from scipy.optimize import least_squares
 
-from ..physics.tungsten import HeaterWire, fast_ratio
+from .physics.tungsten import HeaterWire, fast_ratio
 
 
 @dataclass

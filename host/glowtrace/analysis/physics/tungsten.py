@@ -1,0 +1,124 @@
+"""Tungsten resistivity against temperature, its inverse, and the per-type
+alloy scaling of the resistance ratio.
+
+Data: Forsythe & Worthing (1925) as tabulated in the CRC Handbook, in
+data/tungsten_resistivity.csv (values typed from memory; see that file and
+tests/test_physics.py for the checks). Ratios are taken against 20 C
+(293.15 K), the reference temperature of cold-resistance figures.
+
+Heater wire is often a tungsten-rhenium alloy whose resistance rises less
+with temperature than pure tungsten's. We model a type's ratio as
+    R(T) / R(20 C) = 1 + k * (ratio_W(T) - 1)
+with k = 1 for pure tungsten and k < 1 for an alloy; k is a property of the
+type (catalogue), not of a single tube."""
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from ... import paths
+
+T20_K = 293.15
+ZERO_C_K = 273.15
+
+
+@lru_cache(maxsize=1)
+def table() -> tuple[np.ndarray, np.ndarray]:
+    """(temperature K, resistivity uOhm cm) from the data file."""
+    rows = []
+    with open(paths.TUNGSTEN_PATH) as f:
+        for line in f:
+            line = line.strip()
+            if line and not line.startswith("#") and not line[0].isalpha():
+                rows.append([float(x) for x in line.split(",")])
+    arr = np.array(rows)
+    return arr[:, 0], arr[:, 1]
+
+
+def resistivity(t_k):
+    """Resistivity in uOhm cm; linear between table rows, extrapolated
+    linearly from the end segments outside 300-3000 K."""
+    ts, rho = table()
+    t = np.asarray(t_k, dtype=float)
+    out = np.interp(t, ts, rho)
+    lo = t < ts[0]
+    hi = t > ts[-1]
+    if np.any(lo) or np.any(hi):
+        s0 = (rho[1] - rho[0]) / (ts[1] - ts[0])
+        s1 = (rho[-1] - rho[-2]) / (ts[-1] - ts[-2])
+        out = np.where(lo, rho[0] + (t - ts[0]) * s0, out)
+        out = np.where(hi, rho[-1] + (t - ts[-1]) * s1, out)
+    return out if out.ndim else float(out)
+
+
+def ratio(t_k):
+    """Resistance at t_k over resistance at 20 C, pure tungsten."""
+    return resistivity(t_k) / resistivity(T20_K)
+
+
+@lru_cache(maxsize=1)
+def _inverse_grid() -> tuple[np.ndarray, np.ndarray]:
+    grid = np.linspace(150.0, 3600.0, 3451)
+    return ratio(grid), grid
+
+
+def temperature(r):
+    """Inverse of ratio(): temperature in K for a resistance ratio."""
+    rs, grid = _inverse_grid()
+    return np.interp(np.asarray(r, dtype=float), rs, grid)
+
+
+def alpha_20() -> float:
+    """Temperature coefficient of resistance at 20 C, per kelvin."""
+    return float((ratio(T20_K + 0.5) - ratio(T20_K - 0.5)))
+
+
+@dataclass(frozen=True)
+class HeaterWire:
+    """A type's resistance ratio: pure tungsten scaled by k (see module doc)."""
+    k: float = 1.0
+
+    def ratio(self, t_k):
+        return 1.0 + self.k * (ratio(t_k) - 1.0)
+
+    def temperature(self, r):
+        return temperature(1.0 + (np.asarray(r, dtype=float) - 1.0) / self.k)
+
+    def to_20c(self, resistance: float, ambient_c: float) -> float:
+        """A resistance measured at room temperature, corrected to 20 C."""
+        return resistance / float(self.ratio(ambient_c + ZERO_C_K))
+
+
+class FastRatio:
+    """ratio(T) for scalar use in tight loops (the thermal model): the same
+    piecewise-linear table, precomputed on a 10 K grid, pure Python."""
+
+    def __init__(self, wire: HeaterWire, t0: float = 150.0, t1: float = 3600.0,
+                 step: float = 10.0):
+        self.t0, self.step = t0, step
+        grid = np.arange(t0, t1 + step, step)
+        r = wire.ratio(grid)
+        self.r = [float(x) for x in r]
+        self.slope = [float(x) for x in np.diff(r) / step] + [float((r[-1] - r[-2]) / step)]
+        self.n = len(self.r) - 1
+
+    def slope_at(self, t: float) -> float:
+        i = int((t - self.t0) / self.step)
+        return self.slope[0 if i < 0 else (self.n if i > self.n else i)]
+
+    def __call__(self, t: float) -> float:
+        x = (t - self.t0) / self.step
+        i = int(x)
+        if i < 0:
+            i = 0
+        elif i > self.n:
+            i = self.n
+        return self.r[i] + (t - self.t0 - i * self.step) * self.slope[i]
+
+
+@lru_cache(maxsize=16)
+def fast_ratio(k: float) -> FastRatio:
+    """The FastRatio of an alloy factor, built once: the thermal fit asks for
+    it at every evaluation of its model."""
+    return FastRatio(HeaterWire(k))

@@ -1,0 +1,151 @@
+"""Commands at the tester: `ports`, `sim` and `capture`."""
+
+import sys
+import time
+
+from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+from . import console as ui
+from .common import db_path
+from .figures import capture_summary
+from .tables import Col, fit
+
+
+def cmd_ports(args) -> int:
+    from ..tester.ports import scan
+    rows = scan(probe_boards=not args.no_probe)
+
+    def render(rows):
+        if not rows:
+            ui.out.print("No serial ports found.")
+            return
+        fit(ui.out, [Col("device"), Col("USB id", priority=2), Col("description", wrap=True,
+                                                                     priority=3),
+                     Col("MicroPython rp2", priority=1), Col("glowtrace", wrap=True)],
+            [[r["device"], r["usb_id"] or "", r["description"] or "",
+              "yes" if r["micropython_rp2"] else "",
+              f"yes, firmware {r['firmware']} ({r['board']})" if r["glowtrace"] else "no"]
+             for r in rows])
+    ui.emit(args, rows, render)
+    return 0
+
+
+def sim_settings(args) -> dict:
+    from ..tester.sim import SETTINGS
+    s = {k: getattr(args, k) for k in SETTINGS if getattr(args, k, None) is not None}
+    return {k: v for k, v in s.items() if v is not False}
+
+
+def cmd_sim(args) -> int:
+    from urllib.parse import urlencode
+
+    from ..tester.sim import SimTester, build_scenario
+    settings = sim_settings(args)
+    sim = SimTester(build_scenario(**settings))
+    path = sim.start()
+    url = "glowsim://?" + urlencode({k: int(v) if isinstance(v, bool) else v
+                                     for k, v in settings.items()})
+    info = {"port": path, "url": url, "pid": sim.proc.pid,
+            "flash": sim.scenario["state_dir"]}
+    try:
+        ui.emit(args, info, lambda i: ui.out.print(
+            f"Simulated tester running on [bold]{i['port']}[/] (its flash: {i['flash']})\n"
+            f"Use it from another terminal:  glowtrace capture --port {i['port']} "
+            f"--tube ID --section A\n(or in one step: --port '{i['url']}')\n"
+            "Ctrl-C stops it."))
+        sys.stdout.flush()
+        while sim.alive():
+            time.sleep(0.2)
+        ui.err.print("The simulated tester stopped:\n" + sim.stderr_text(), markup=False)
+        return 1
+    except KeyboardInterrupt:
+        return 0
+    finally:
+        sim.stop()
+
+
+def _progress_bar(max_s: float):
+    bar = Progress(TextColumn("[bold]{task.description}"), BarColumn(),
+                   TextColumn("{task.fields[status]}"), TimeElapsedColumn(),
+                   console=ui.err, transient=True)
+    task = bar.add_task("capturing", total=max_s, status="")
+
+    def update(raw):
+        b = raw.blocks[-1]
+        t_s = (b.t_start_us + b.interval_us * b.n_sets) / 1e6
+        phase = raw.phases[b.phase - 1][0] if 0 < b.phase <= len(raw.phases) else "baseline"
+        bar.update(task, completed=min(t_s, max_s),
+                   status=f"{t_s:6.2f} s heater time, {phase} phase, {raw.n_sets} sets")
+    return bar, update
+
+
+def cmd_capture(args) -> int:
+    from ..procedures.capture import UserInterrupt, capture_into_logbook
+    from ..tester.convert import summary
+    params = {"range": args.range, "max_s": args.max_s,
+              "settle_band": args.settle_band, "settle_hold_s": args.settle_hold_s}
+    bar, update = _progress_bar(args.max_s)
+    try:
+        with bar:
+            raw = capture_into_logbook(db_path(args), args.port, args.tube, args.section,
+                                       args.type, params, update)
+    except UserInterrupt as e:
+        off = ("heater off, confirmed by the tester" if e.off_confirmed else
+               "heater-off NOT confirmed: the tester switches off by itself when "
+               "the host is silent for 2 s; check it")
+        ui.err.print(f"Interrupted: {off}. The partial capture {e.raw.uuid} is "
+                     "stored, marked incomplete.", markup=False)
+        return 130
+    s = summary(raw)
+    s["database"] = str(db_path(args))
+    ui.emit(args, s, capture_summary)
+    if raw.trip and raw.trip["cause"] == "over_current" and args.range == "low":
+        ui.warn("Over-current trip on the low range: a power tube's or rectifier's inrush "
+                "needs --range high. If it trips there too, suspect a shorted heater.")
+    if not raw.complete:
+        ui.warn(f"Capture incomplete: {raw.incomplete_reason}")
+        return 2
+    return 0
+
+
+def register(sub, common) -> None:
+    s = sub.add_parser("ports", parents=[common], help="list serial ports and testers")
+    s.add_argument("--no-probe", action="store_true",
+                   help="do not ask MicroPython boards whether they run glowtrace")
+    s.set_defaults(func=cmd_ports)
+
+    from ..tester.sim import SETTINGS, tube_presets
+    s = sub.add_parser("sim", parents=[common],
+                       help="run the simulated tester and print its port",
+                       description="Run the simulated tester (the real firmware under "
+                                   "micropython) on a pseudo-terminal. Every setting here "
+                                   "is also a glowsim:// URL query key, with _ for -.")
+    for key, setting in SETTINGS.items():
+        flag = "--" + key.replace("_", "-")
+        if setting.kind is bool:
+            s.add_argument(flag, dest=key, action="store_true", help=setting.help)
+        elif key == "tube":
+            s.add_argument(flag, dest=key, default="12AX7", choices=sorted(tube_presets()),
+                           metavar="TYPE", help=setting.help + ": "
+                           + ", ".join(sorted(tube_presets())))
+        else:
+            s.add_argument(flag, dest=key, type=setting.kind, choices=setting.choices or None,
+                           help=setting.help)
+    s.set_defaults(func=cmd_sim)
+
+    s = sub.add_parser("capture", parents=[common], help="capture one start-up curve")
+    s.add_argument("--port", help="serial device, or a glowsim:// URL "
+                                  "(default: the one tester found on USB)")
+    s.add_argument("--tube", required=True, help="your label for the tube")
+    s.add_argument("--section", required=True, choices=["A", "B", "AB"],
+                   help="heater section(s) to switch on")
+    s.add_argument("--type", help="tube type, e.g. 12AX7 (stored with a new tube)")
+    s.add_argument("--range", choices=["low", "high"], default="low",
+                   help="current range: low to 3.3 A, high to 33 A (default low)")
+    s.add_argument("--max-s", type=float, default=60.0, help="longest capture, s (default 60)")
+    s.add_argument("--settle-band", type=float, default=0.005,
+                   help="relative band for the adaptive end (default 0.005)")
+    s.add_argument("--settle-hold-s", type=float, default=2.0,
+                   help="time the current must stay in the band, s (default 2)")
+    s.set_defaults(func=cmd_capture)
+

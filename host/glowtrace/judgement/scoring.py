@@ -1,0 +1,408 @@
+"""Judging tubes: each tube section against its own history, each tube
+against its type, an assessment in plain words and a grade for dealers.
+
+Reads only the `section_metrics` table (one row per capture and section, the
+newest analysis version of each), so a whole fleet is scored without parsing
+a single analysis document. Settings: config.py (data/scoring.toml)."""
+
+import json
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta, timezone
+
+import numpy as np
+
+from .. import catalogue
+from . import charts
+from ..config import METRICS
+from ..errors import GlowtraceError
+from ..logbook.store import Store
+
+LABELS = {
+    "cold_resistance_20c_ohm": ("cold resistance at 20 C", "ohm"),
+    "hot_current_a": ("hot current", "A"),
+    "inrush_20c": ("inrush at 20 C (peak over hot current)", "x"),
+    "warmup_90_s": ("warm-up to 90 %", "s"),
+    "settle_1pct_s": ("settling time (1 %)", "s"),
+    "flash_index": ("flash index", ""),
+}
+# statuses, worst first: words of our own
+STATUS_ORDER = ("heater fault", "at limit", "drifting", "watch", "new", "steady")
+SECONDS_PER_YEAR = 365.25 * 86400
+
+
+def _parse_at(at: str) -> datetime:
+    d = datetime.fromisoformat(at.replace("Z", "+00:00"))
+    return d if d.tzinfo else d.replace(tzinfo=timezone.utc)
+
+
+def _years(ats: list[str]) -> np.ndarray:
+    t0 = _parse_at(ats[0])
+    return np.array([(_parse_at(a) - t0).total_seconds() / SECONDS_PER_YEAR for a in ats])
+
+
+@dataclass
+class MetricScore:
+    metric: str
+    n: int
+    baseline: float | None = None
+    scale: float | None = None
+    latest: float | None = None
+    change: float | None = None          # relative to baseline (flash: absolute)
+    z_latest: float | None = None
+    ewma_signal: bool = False
+    cusum_signal: bool = False
+    trend_per_year: float | None = None  # relative (flash: absolute) change per year
+    trend_p: float | None = None
+    trend_significant: bool = False
+    limit: float | None = None
+    at_limit: bool = False
+    crossing: str | None = None          # ISO date the trend reaches the limit
+    drifting: bool = False
+    reasons: list = field(default_factory=list)
+
+
+def _bad(direction: str, sign: float) -> bool:
+    return (direction == "up" and sign > 0) or (direction == "down" and sign < 0) or (
+        direction == "both" and sign != 0)
+
+
+def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
+                 base_index: list[int] | None, cfg: dict, section: str,
+                 years: list[float] | None = None) -> MetricScore:
+    """One metric of one tube section; xs are the scored captures' values in
+    time order, ats their times (years: the same in years from the first);
+    base_index the user's baseline captures (positions in xs)."""
+    ch = cfg["charts"]
+    lim = cfg["limits"][metric]
+    direction = lim["direction"]
+    absolute = metric == "flash_index"
+    label, unit = LABELS[metric]
+    x = [float(v) for v in xs]
+    s = MetricScore(metric, len(x))
+    if not x:
+        return s
+    s.latest = x[-1]
+    idx = base_index if base_index else list(range(min(n_base, len(x))))
+    if len(idx) < n_base and not base_index:
+        return s
+    centre, spread = charts.robust_centre_scale([x[k] for k in idx])
+    floor = cfg["noise_floor"][metric] * (1.0 if absolute else abs(centre))
+    scale = max(spread, floor)
+    s.baseline, s.scale = centre, scale
+    z = [(v - centre) / scale for v in x]
+    s.z_latest = z[-1]
+    s.change = (x[-1] - centre) if absolute else (x[-1] - centre) / centre
+    after = z[max(idx) + 1:]
+    where = f"section {section}: {label}"
+    if len(after):
+        e = charts.ewma(z[max(idx):], 0.0, 1.0, ch["ewma_lambda"], ch["ewma_limit"])
+        last = float(e.values[-1])
+        s.ewma_signal = (last > e.upper and _bad(direction, 1)) or (
+            last < e.lower and _bad(direction, -1))
+        c = charts.cusum(after, 0.0, ch["cusum_k"], ch["cusum_h"])
+        s.cusum_signal = (c.upper[-1] > c.h and _bad(direction, 1)) or (
+            c.lower[-1] > c.h and _bad(direction, -1))
+    t = years if years is not None else list(_years(ats))
+    slope = icpt = None
+    if len(x) >= ch["trend_min"] and t[-1] > t[0]:
+        slope, icpt = charts.theil_sen(t, xs)
+        mk = charts.mann_kendall(xs, t)
+        s.trend_per_year = slope if absolute else slope / centre
+        s.trend_p = mk.p
+        moved = abs(slope * t[-1]) > 2 * scale
+        s.trend_significant = mk.p < ch["trend_p"] and _bad(direction, slope) and moved
+    if absolute:
+        s.limit = lim["absolute"]
+        s.at_limit = s.latest >= s.limit
+    else:
+        sign = 1 if direction == "up" else -1
+        s.limit = centre * (1 + sign * lim["change"])
+        s.at_limit = (s.latest >= s.limit) if sign > 0 else (s.latest <= s.limit)
+        if direction == "both":
+            s.at_limit = abs(s.latest / centre - 1) >= lim["change"]
+    def fmt(v):
+        return f"{v:+.3f}" if absolute else f"{100 * v:+.1f} %"
+    if s.trend_significant and not s.at_limit and slope:
+        years = (s.limit - (icpt + slope * t[-1])) / slope
+        if 0 < years < 50:
+            when = _parse_at(ats[-1]) + timedelta(days=365.25 * years)
+            s.crossing = when.date().isoformat()
+    s.drifting = s.ewma_signal or s.cusum_signal or s.trend_significant
+    if s.at_limit:
+        s.reasons.append(f"{where} is {fmt(s.change)} from its baseline, at or past its "
+                         f"limit ({f'{s.limit:.4g} {unit}'.strip()})")
+    elif s.drifting:
+        why = []
+        if s.trend_significant:
+            p = "p < 0.001" if s.trend_p < 0.001 else f"p = {s.trend_p:.3f}"
+            why.append(f"a steady trend of {fmt(s.trend_per_year)} a year (Mann-Kendall {p})")
+        if s.cusum_signal or s.ewma_signal:
+            why.append("a lasting shift beyond the noise (CUSUM/EWMA)")
+        msg = f"{where} has moved {fmt(s.change)} from its baseline: " + " and ".join(why)
+        if s.crossing:
+            msg += f"; at this rate it reaches its limit around {s.crossing}"
+        s.reasons.append(msg)
+    return s
+
+
+def _excluded_fault(row: dict) -> bool:
+    ex = row.get("excluded") or ""
+    return "open heater" in ex or "shorted" in ex
+
+
+def score_section(rows: list[dict], cfg: dict, section: str,
+                  baseline_uuids: list[str] | None = None) -> dict:
+    scored = [r for r in rows if r["scored"]]
+    n_base = int(cfg["baseline"]["count"])
+    out = {"captures": len(rows), "scored": len(scored), "metrics": {}, "reasons": []}
+    if rows and _excluded_fault(rows[-1]):
+        out["status"] = "heater fault"
+        out["reasons"].append(f"section {section}: the latest capture shows "
+                              f"{rows[-1]['excluded']}")
+        return out
+    statuses = []
+    yrs = list(_years([r["at"] for r in scored])) if scored else []
+    for m in METRICS:
+        pts = [(r["at"], r[m], r["capture_uuid"], y) for r, y in zip(scored, yrs)
+               if r[m] is not None]
+        ats, xs, uuids = [p[0] for p in pts], [p[1] for p in pts], [p[2] for p in pts]
+        years = [p[3] for p in pts]
+        base_idx = [uuids.index(u) for u in (baseline_uuids or []) if u in uuids] or None
+        s = score_metric(m, ats, xs, n_base, base_idx, cfg, section, years)
+        out["metrics"][m] = {k: v for k, v in s.__dict__.items() if k != "reasons"}
+        # metrics at their limit lead the reasons
+        out["reasons"] = (s.reasons + out["reasons"]) if s.at_limit else (out["reasons"] + s.reasons)
+        if s.at_limit and s.baseline is not None:
+            statuses.append("at limit")
+        elif s.drifting:
+            statuses.append("drifting")
+        elif s.z_latest is not None and abs(s.z_latest) > 4:
+            statuses.append("watch")
+            out["reasons"].append(f"section {section}: the latest {LABELS[m][0]} is "
+                                  f"{s.z_latest:+.1f} noise units from its baseline "
+                                  "(a single capture: measure again)")
+    if len(scored) < n_base and not baseline_uuids:
+        statuses.append("new")
+        out["reasons"].append(f"section {section}: {len(scored)} good cold start(s) of the "
+                              f"{n_base} that make its baseline")
+    out["status"] = min(statuses or ["steady"], key=STATUS_ORDER.index)
+    out["drifting"] = any(v["drifting"] for v in out["metrics"].values())
+    return out
+
+
+def worst(statuses) -> str:
+    return min(statuses or ["steady"], key=STATUS_ORDER.index)
+
+
+# loading ------------------------------------------------------------------
+_ROWS_SQL = """
+SELECT s.* FROM section_metrics s
+WHERE s.version = (SELECT max(version) FROM section_metrics x
+                   WHERE x.capture_uuid = s.capture_uuid AND x.section = s.section)
+{where} ORDER BY s.tube, s.section, s.at, s.capture_uuid"""
+
+
+def load_rows(store: Store, tube: str | None = None) -> dict:
+    """tube -> section -> rows in time order (newest analysis of each)."""
+    sql = _ROWS_SQL.format(where="AND s.tube = ?" if tube else "")
+    cur = store.db.execute(sql, [tube] if tube else [])
+    cols = [d[0] for d in cur.description]
+    out: dict = {}
+    for r in cur.fetchall():
+        row = dict(zip(cols, r))
+        out.setdefault(row["tube"], {}).setdefault(row["section"], []).append(row)
+    return out
+
+
+def load_baselines(store: Store, tube: str | None = None) -> dict:
+    sql = "SELECT tube, section, captures FROM baselines" + (" WHERE tube = ?" if tube else "")
+    return {(t, s): json.loads(c) for t, s, c in
+            store.db.execute(sql, [tube] if tube else []).fetchall()}
+
+
+def type_population(store: Store, type_name: str) -> dict:
+    """Latest scored values of every tube section of a type, per metric
+    (newest analysis version; SQLite takes the bare columns from the row
+    with max(at))."""
+    cols = ", ".join(METRICS)
+    rows = store.db.execute(
+        f"SELECT tube, section, max(at), {cols} FROM section_metrics "
+        "WHERE scored = 1 AND version = (SELECT max(version) FROM section_metrics) "
+        "AND tube IN (SELECT label FROM tubes WHERE type = ?) GROUP BY tube, section",
+        [type_name]).fetchall()
+    return {m: [r[3 + k] for r in rows if r[3 + k] is not None] for k, m in enumerate(METRICS)}
+
+
+def _population(rows) -> dict:
+    """Per metric, the newest value of each tube section among these rows
+    (they come in time order)."""
+    latest = {(r["tube"], r["section"]): r for r in rows}
+    return {m: [r[m] for r in latest.values() if r[m] is not None] for m in METRICS}
+
+
+def percentile(value: float, population: list[float]) -> float:
+    """Share of the population at or below value, 0-100 (mid-rank for ties)."""
+    p = np.asarray(population, float)
+    return float(100.0 * ((p < value).sum() + 0.5 * (p == value).sum()) / len(p))
+
+
+# tubes --------------------------------------------------------------------
+def assess(tube: dict, sections: dict, cfg: dict, baselines: dict,
+           population: dict | None) -> dict:
+    """Assessment of one tube from its section rows."""
+    tube_type = None
+    if tube.get("type"):
+        try:
+            tube_type = catalogue.load().get(tube["type"])
+        except GlowtraceError:
+            tube_type = None
+    # the sections measured so far; a tube never captured shows its type's
+    wanted = tuple(sorted(sections)) or (
+        ("A", "B") if tube_type is None or tube_type.centre_tapped else ("A",))
+    result = {"tube": tube["label"], "type": tube.get("type"), "owner": tube.get("owner"),
+              "sections": {}, "reasons": []}
+    for sec in wanted:
+        rows = sections.get(sec, [])
+        if not rows and tube_type is None:
+            continue
+        sc = score_section(rows, cfg, sec, baselines.get((tube["label"], sec)))
+        result["sections"][sec] = sc
+    # the worst section's reasons first
+    for sc in sorted(result["sections"].values(), key=lambda x: STATUS_ORDER.index(x["status"])):
+        result["reasons"] += sc["reasons"]
+    statuses = [s["status"] for s in result["sections"].values()]
+    if not any(s["scored"] for s in result["sections"].values()):
+        statuses.append("new")
+    result["status"] = worst(statuses)
+    result["drifting"] = any(s.get("drifting") for s in result["sections"].values())
+    result["against_type"] = against_type(result, sections, tube_type, cfg, population)
+    result["reasons"] += result["against_type"].pop("reasons")
+    result["grade"] = grade(result, cfg)
+    if not result["reasons"]:
+        result["reasons"].append("no change beyond the measurement noise")
+    return result
+
+
+def _latest_scored(rows: list[dict]) -> dict | None:
+    good = [r for r in rows if r["scored"]]
+    return good[-1] if good else None
+
+
+def against_type(result: dict, sections: dict, tube_type, cfg: dict,
+                 population: dict | None) -> dict:
+    out = {"rated_amps": None, "current_deviation": {}, "within_tolerance": None,
+           "percentile": {}, "section_imbalance": None, "reasons": []}
+    tol = cfg["type"]["hot_current_tolerance"]
+    if tube_type is not None and tube_type.hot_current_tolerance is not None:
+        tol = float(tube_type.hot_current_tolerance)
+    out["tolerance"] = tol
+    latest = {sec: _latest_scored(rows) for sec, rows in sections.items()}
+    if tube_type is not None:
+        rated = tube_type.section_rating().amps
+        out["rated_amps"] = rated
+        for sec, row in latest.items():
+            if row and row["hot_current_a"]:
+                dev = row["hot_current_a"] / rated - 1
+                out["current_deviation"][sec] = dev
+                if abs(dev) > tol:
+                    out["reasons"].append(
+                        f"section {sec}: hot current {row['hot_current_a']:.3f} A is "
+                        f"{100 * dev:+.1f} % from the rated {rated:g} A (tolerance "
+                        f"{100 * tol:g} %)")
+        if out["current_deviation"]:
+            out["within_tolerance"] = all(abs(d) <= tol for d in out["current_deviation"].values())
+    if population:
+        n = len(population.get("hot_current_a", []))
+        if n >= cfg["type"]["min_population"]:
+            for sec, row in latest.items():
+                if row:
+                    out["percentile"][sec] = {
+                        m: percentile(row[m], population[m]) for m in
+                        ("hot_current_a", "cold_resistance_20c_ohm") if row[m] is not None}
+            out["population"] = n
+    a, b = latest.get("A"), latest.get("B")
+    if a and b and a["hot_resistance_ohm"] and b["hot_resistance_ohm"]:
+        ra, rb = a["hot_resistance_ohm"], b["hot_resistance_ohm"]
+        out["section_imbalance"] = abs(ra - rb) / (0.5 * (ra + rb))
+    return out
+
+
+def grade(result: dict, cfg: dict) -> str | None:
+    """The first grade whose every limit the tube meets; None when it cannot
+    be judged (unknown type, no good capture)."""
+    at = result["against_type"]
+    if not at["current_deviation"]:
+        return None
+    dev = max(abs(d) for d in at["current_deviation"].values())
+    flashes = [s["metrics"].get("flash_index", {}).get("latest")
+               for s in result["sections"].values()]
+    flash = max((f for f in flashes if f is not None), default=0.0)
+    imb = at["section_imbalance"]
+    bad = result["status"] in ("heater fault", "at limit")
+    for g in cfg["grades"]:
+        if bad:
+            break
+        if "max_current_deviation" in g and dev > g["max_current_deviation"]:
+            continue
+        if "max_flash_index" in g and flash > g["max_flash_index"]:
+            continue
+        if "max_section_imbalance" in g and imb is not None and imb > g["max_section_imbalance"]:
+            continue
+        if not g.get("allow_drifting", True) and result["drifting"]:
+            continue
+        return g["name"]
+    return cfg["grade_none"]["name"]
+
+
+def assess_tube(store: Store, label: str, cfg: dict, rows: dict | None = None) -> dict:
+    """rows: the tube's section rows, if the caller has loaded them already."""
+    from ..logbook.records import require_tube
+    tube = require_tube(store, label)
+    if rows is None:
+        rows = load_rows(store, label).get(label, {})
+    pop = type_population(store, tube["type"]) if tube["type"] else None
+    return assess(tube, rows, cfg, load_baselines(store, label), pop)
+
+
+def history(store: Store, label: str, cfg: dict) -> dict:
+    """The assessment plus every capture of the tube with its analysis."""
+    section_rows = load_rows(store, label).get(label, {})
+    result = assess_tube(store, label, cfg, section_rows)
+    rows = store.db.execute(
+        "SELECT c.uuid, c.started_at, c.section, c.source, c.complete, c.incomplete_reason, "
+        "(SELECT result FROM analyses a WHERE a.capture_uuid = c.uuid "
+        " ORDER BY a.version DESC LIMIT 1) FROM captures c WHERE c.tube = ? "
+        "ORDER BY c.started_at, c.uuid", [label]).fetchall()
+    excluded = {(r["capture_uuid"], sec): r for sec, rs in
+                section_rows.items() for r in rs}
+    caps = []
+    for uuid, at, section, source, complete, why, res in rows:
+        analysis = json.loads(res) if res else {}
+        for sec in section:
+            m = dict(analysis.get("sections", {}).get(sec, {}))
+            m.pop("thermal_model", None)
+            row = excluded.get((uuid, sec), {})
+            caps.append({"uuid": uuid, "at": at, "section": sec, "source": source,
+                         "complete": bool(complete), "incomplete_reason": why,
+                         "scored": bool(row.get("scored")), "excluded": row.get("excluded"),
+                         **m, "inrush_20c": row.get("inrush_20c")})
+    result["captures"] = caps
+    return result
+
+
+def assess_fleet(store: Store, cfg: dict, type_name: str | None = None,
+                 owner: str | None = None) -> list[dict]:
+    from ..logbook.records import list_tubes
+    everyone = list_tubes(store)
+    tubes = list_tubes(store, owner=owner, type_name=type_name) if owner or type_name \
+        else everyone
+    rows = load_rows(store)
+    baselines = load_baselines(store)
+    by_type: dict = {}
+    for t in everyone:
+        by_type.setdefault(t["type"], []).append(t["label"])
+    pops = {tname: _population(r for lbl in labels for sec_rows in rows.get(lbl, {}).values()
+                               for r in sec_rows if r["scored"])
+            for tname, labels in by_type.items()}
+    return [assess(t, rows.get(t["label"], {}), cfg, baselines, pops.get(t["type"]))
+            for t in tubes]

@@ -1,0 +1,373 @@
+"""The SQLite logbook: schema with recorded migrations, captures keyed by
+UUID, raw samples kept losslessly with the timing, front end and calibration
+they were taken with. A capture is written in one transaction: it is there
+whole or not at all."""
+
+import json
+import sqlite3
+from contextlib import contextmanager
+from datetime import datetime, timezone
+from pathlib import Path
+
+import lzma
+
+import numpy as np
+import sqlite_utils
+
+from . import samples_codec
+from ..tester.raw import RawCapture
+from ..errors import StoreError
+
+
+IMPORT_ENCODING = "float64-columns-lzma-v1"
+
+
+def _now() -> str:
+    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+
+def _m1_initial(db: sqlite_utils.Database) -> None:
+    db["tubes"].create({"label": str, "type": str, "notes": str, "created_at": str},
+                       pk="label")
+    db["captures"].create({
+        "uuid": str, "tube": str, "section": str, "started_at": str, "stored_at": str,
+        "complete": int, "incomplete_reason": str, "end_reason": str, "trip_cause": str,
+        "board_id": str, "firmware": str, "port": str, "ambient_c": float,
+        "n_sets": int, "n_blocks": int, "params": str, "hello": str, "phases": str,
+        "end_record": str, "trip_record": str, "link": str,
+    }, pk="uuid", foreign_keys=[("tube", "tubes", "label")])
+    db["captures"].create_index(["tube", "section", "started_at"])
+    db["capture_samples"].create({
+        "capture_uuid": str, "encoding": str, "channels": str, "n_sets": int,
+        "blocks": bytes, "samples": bytes,
+    }, pk="capture_uuid", foreign_keys=[("capture_uuid", "captures", "uuid")])
+
+
+def _m2_analyses(db: sqlite_utils.Database) -> None:
+    # one row per capture and analysis version: re-running a newer analysis
+    # adds a row, older results stay for comparison
+    db["analyses"].create({"capture_uuid": str, "version": str, "created_at": str,
+                           "result": str}, pk=("capture_uuid", "version"),
+                          foreign_keys=[("capture_uuid", "captures", "uuid")])
+
+
+METRIC_COLUMNS = ("cold_resistance_20c_ohm", "hot_current_a", "hot_resistance_ohm",
+                  "inrush_ratio", "inrush_20c", "warmup_90_s", "settle_1pct_s", "flash_index")
+# warnings that keep a capture out of history scoring (it is still shown)
+SERIOUS = ("open heater", "shorted", "clipped", "too short", "not analysed",
+           "no resistance rise", "not a cold start", "incomplete", "no samples")
+
+
+def _m3_records(db: sqlite_utils.Database) -> None:
+    db["owners"].create({"name": str, "contact": str, "notes": str, "created_at": str},
+                        pk="name")
+    db.execute("ALTER TABLE tubes ADD COLUMN owner TEXT REFERENCES owners(name)")
+    db.execute("ALTER TABLE captures ADD COLUMN source TEXT NOT NULL DEFAULT 'tester'")
+    # one row per capture, section and analysis version: what history scoring
+    # reads, as columns, so a fleet is scored without parsing JSON
+    cols = {"capture_uuid": str, "section": str, "version": str, "tube": str, "at": str,
+            "ambient_c": float, "cold_start_ok": int, "scored": int, "excluded": str}
+    cols.update({c: float for c in METRIC_COLUMNS})
+    db["section_metrics"].create(cols, pk=("capture_uuid", "section", "version"),
+                                 foreign_keys=[("capture_uuid", "captures", "uuid")])
+    db["section_metrics"].create_index(["tube", "section", "version", "at"])
+    db["baselines"].create({"tube": str, "section": str, "captures": str, "set_at": str},
+                           pk=("tube", "section"), foreign_keys=[("tube", "tubes", "label")])
+    rows = db.execute("SELECT a.capture_uuid, a.version, a.result, c.tube, c.started_at, "
+                      "c.complete FROM analyses a JOIN captures c ON c.uuid = a.capture_uuid"
+                      ).fetchall()
+    for uuid, version, result, tube, at, complete in rows:
+        for row in metric_rows(uuid, version, json.loads(result), tube, at, bool(complete)):
+            _insert(db.conn, "section_metrics", row)
+
+
+def metric_rows(uuid: str, version: str, result: dict, tube: str | None, at: str,
+                complete: bool) -> list[dict]:
+    """section_metrics rows of one analysis; `excluded` says why a row is
+    left out of history scoring."""
+    out = []
+    general = " ".join(result.get("warnings", []))
+    for sec, m in result.get("sections", {}).items():
+        why = [w for w in m.get("warnings", []) + ([general] if general else [])
+               if any(s in w for s in SERIOUS)]
+        if not complete:
+            why.append("capture incomplete")
+        if not m.get("cold_start_ok") and not any("cold start" in w for w in why):
+            why.append("not a cold start")
+        row = {"capture_uuid": uuid, "section": sec, "version": version, "tube": tube,
+               "at": at, "ambient_c": m.get("ambient_c"),
+               "cold_start_ok": int(bool(m.get("cold_start_ok"))),
+               "scored": int(not why), "excluded": "; ".join(dict.fromkeys(why)) or None}
+        row.update({c: m.get(c) for c in METRIC_COLUMNS})
+        # the inrush the tube would show at 20 C: room temperature changes the
+        # cold resistance, and with it the inrush, but not the tube
+        if m.get("inrush_ratio") and m.get("cold_resistance_20c_ohm"):
+            row["inrush_20c"] = (m["inrush_ratio"] * m["cold_resistance_ohm"]
+                                 / m["cold_resistance_20c_ohm"])
+        out.append(row)
+    return out
+
+
+def _m4_calibrations(db: sqlite_utils.Database) -> None:
+    db["calibrations"].create({"id": int, "board": str, "at": str, "data": str}, pk="id")
+    db["calibrations"].create_index(["board", "at"])
+
+
+# (version, name, function). Append only: never edit a released migration.
+MIGRATIONS = [
+    (1, "initial: tubes, captures, capture_samples", _m1_initial),
+    (2, "analyses of captures, per analysis version", _m2_analyses),
+    (3, "owners, capture source, section metrics, baselines", _m3_records),
+    (4, "calibrations of testers", _m4_calibrations),
+]
+LATEST = MIGRATIONS[-1][0]
+
+
+def _insert(conn, table: str, row: dict) -> None:
+    # plain SQL: sqlite-utils' insert commits by itself, which would split the
+    # one transaction a capture is written in
+    cols = ", ".join(row)
+    marks = ", ".join("?" for _ in row)
+    conn.execute(f"INSERT INTO [{table}] ({cols}) VALUES ({marks})", list(row.values()))
+
+
+class Store:
+    def __init__(self, path: str | Path, create: bool = True, timeout: float = 5.0):
+        self.path = Path(path)
+        if not create and not self.path.exists():
+            raise StoreError(f"no database at {self.path}")
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            # autocommit mode: transactions are opened and closed explicitly
+            conn = sqlite3.connect(self.path, timeout=timeout, isolation_level=None)
+            conn.execute("PRAGMA foreign_keys = ON")
+            self.db = sqlite_utils.Database(conn)
+            self._migrate()
+        except sqlite3.DatabaseError as e:
+            raise self._error("cannot use database", e) from None
+
+    def _error(self, what: str, e: Exception) -> StoreError:
+        if "locked" in str(e):
+            return StoreError(f"{what} {self.path}: it is locked by another program "
+                              "(is another glowtrace writing to it?)")
+        return StoreError(f"{what} {self.path}: {e}")
+
+    @contextmanager
+    def transaction(self):
+        """All or nothing: BEGIN IMMEDIATE ... COMMIT, ROLLBACK on any error."""
+        conn = self.db.conn
+        conn.execute("BEGIN IMMEDIATE")
+        try:
+            yield conn
+        except BaseException:
+            conn.execute("ROLLBACK")
+            raise
+        conn.execute("COMMIT")
+
+    def close(self) -> None:
+        self.db.conn.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    # schema --------------------------------------------------------------
+    def schema_version(self) -> int:
+        if "schema_migrations" not in self.db.table_names():
+            return 0
+        row = self.db.execute("SELECT max(version) FROM schema_migrations").fetchone()
+        return row[0] or 0
+
+    def _migrate(self) -> None:
+        current = self.schema_version()
+        if current > LATEST:
+            raise StoreError(
+                f"{self.path} was written by a newer glowtrace (schema {current}, "
+                f"this version knows up to {LATEST}): upgrade glowtrace")
+        for version, name, fn in MIGRATIONS:
+            if version <= current:
+                continue
+            with self.transaction() as conn:
+                if "schema_migrations" not in self.db.table_names():
+                    self.db["schema_migrations"].create(
+                        {"version": int, "name": str, "applied_at": str}, pk="version")
+                fn(self.db)
+                _insert(conn, "schema_migrations",
+                        {"version": version, "name": name, "applied_at": _now()})
+
+    # captures ------------------------------------------------------------
+    def save_capture(self, raw: RawCapture, tube_type: str | None = None,
+                     notes: str | None = None) -> str:
+        meta_blob, samples_blob = samples_codec.encode(raw.blocks)
+        row = {
+            "uuid": raw.uuid, "tube": raw.tube, "section": raw.section,
+            "started_at": raw.started_at, "stored_at": _now(),
+            "complete": int(raw.complete), "incomplete_reason": raw.incomplete_reason,
+            "end_reason": raw.end_reason, "trip_cause": raw.trip["cause"] if raw.trip else None,
+            "board_id": raw.hello.get("board"), "firmware": raw.hello.get("firmware"),
+            "port": raw.port, "ambient_c": raw.ambient_c, "n_sets": raw.n_sets,
+            "n_blocks": len(raw.blocks), "params": json.dumps(raw.params),
+            "hello": json.dumps(raw.hello), "phases": json.dumps(raw.phases),
+            "end_record": json.dumps(raw.end), "trip_record": json.dumps(raw.trip),
+            "link": json.dumps(raw.link),
+        }
+        try:
+            with self.transaction() as conn:  # the capture is whole or absent
+                if raw.tube is not None and not self.db["tubes"].count_where(
+                        "label = ?", [raw.tube]):
+                    _insert(conn, "tubes", {"label": raw.tube, "type": tube_type,
+                                            "notes": notes, "created_at": _now()})
+                _insert(conn, "captures", row)
+                _insert(conn, "capture_samples", {
+                    "capture_uuid": raw.uuid, "encoding": samples_codec.ENCODING,
+                    "channels": json.dumps(raw.channels), "n_sets": raw.n_sets,
+                    "blocks": meta_blob, "samples": samples_blob})
+        except sqlite3.DatabaseError as e:
+            raise self._error(f"capture {raw.uuid} not stored in", e) from None
+        return raw.uuid
+
+    def save_imported(self, uuid: str, tube: str, section: str, started_at: str,
+                      ambient_c: float, columns: dict, source_name: str) -> str:
+        """A curve recorded by another instrument, kept exactly as read
+        (float64 columns, LZMA): time_s, volts, amps and optionally light."""
+        names = list(columns)
+        data = np.column_stack([np.asarray(columns[n], "<f8") for n in names])
+        row = {"uuid": uuid, "tube": tube, "section": section, "started_at": started_at,
+               "stored_at": _now(), "complete": 1, "incomplete_reason": None,
+               "end_reason": "imported", "trip_cause": None, "board_id": None,
+               "firmware": None, "port": source_name, "ambient_c": ambient_c,
+               "n_sets": len(data), "n_blocks": 0, "params": json.dumps({"section": section}),
+               "hello": json.dumps({"source": source_name}), "phases": "[]",
+               "end_record": "null", "trip_record": "null", "link": "{}", "source": "import"}
+        try:
+            with self.transaction() as conn:
+                _insert(conn, "captures", row)
+                _insert(conn, "capture_samples", {
+                    "capture_uuid": uuid, "encoding": IMPORT_ENCODING,
+                    "channels": json.dumps(names), "n_sets": len(data), "blocks": b"",
+                    "samples": lzma.compress(data.tobytes())})
+        except sqlite3.DatabaseError as e:
+            raise self._error(f"curve {uuid} not stored in", e) from None
+        return uuid
+
+    def capture_source(self, uuid: str) -> str:
+        return self.db.execute("SELECT source FROM captures WHERE uuid = ?", [uuid]).fetchone()[0]
+
+    def load_imported(self, uuid: str) -> tuple[dict, dict]:
+        """(capture row, columns by name) of an imported curve."""
+        c = self.db["captures"].get(uuid)
+        s = self.db["capture_samples"].get(uuid)
+        names = json.loads(s["channels"])
+        data = np.frombuffer(lzma.decompress(s["samples"]), "<f8").reshape(-1, len(names))
+        return c, {n: data[:, k] for k, n in enumerate(names)}
+
+    def find_uuid(self, prefix: str) -> str:
+        rows = self.db.execute(
+            "SELECT uuid FROM captures WHERE uuid LIKE ? ORDER BY uuid LIMIT 2",
+            [prefix + "%"]).fetchall()
+        if not rows:
+            raise StoreError(f"no capture {prefix!r} in {self.path}")
+        if len(rows) > 1:
+            raise StoreError(f"{prefix!r} matches more than one capture: give more of the UUID")
+        return rows[0][0]
+
+    def load_capture(self, uuid: str) -> RawCapture:
+        uuid = self.find_uuid(uuid)
+        c = self.db["captures"].get(uuid)
+        if c["source"] == "import":
+            raise StoreError(f"capture {uuid} is an imported curve, not a tester capture")
+        s = self.db["capture_samples"].get(uuid)
+        if s["encoding"] != samples_codec.ENCODING:
+            raise StoreError(f"capture {uuid}: unknown sample encoding {s['encoding']}")
+        return RawCapture(
+            tube=c["tube"], section=c["section"], port=c["port"],
+            hello=json.loads(c["hello"]), params=json.loads(c["params"]),
+            channels=json.loads(s["channels"]), ambient_c=c["ambient_c"],
+            phases=json.loads(c["phases"]),
+            blocks=samples_codec.decode(s["blocks"], s["samples"]),
+            end=json.loads(c["end_record"]), trip=json.loads(c["trip_record"]),
+            incomplete_reason=c["incomplete_reason"], link=json.loads(c["link"]),
+            started_at=c["started_at"], uuid=c["uuid"])
+
+    def list_captures(self, tube: str | None = None) -> list[dict]:
+        where, args = ("WHERE c.tube = ?", [tube]) if tube else ("", [])
+        sql = f"""SELECT c.uuid, c.tube, t.type, c.section, c.started_at, c.complete,
+                  c.incomplete_reason, c.end_reason, c.trip_cause, c.n_sets, c.ambient_c,
+                  length(s.samples) + length(s.blocks) AS sample_bytes
+                  FROM captures c LEFT JOIN tubes t ON t.label = c.tube
+                  LEFT JOIN capture_samples s ON s.capture_uuid = c.uuid
+                  {where} ORDER BY c.started_at, c.uuid"""
+        cur = self.db.execute(sql, args)
+        cols = [d[0] for d in cur.description]
+        return [dict(zip(cols, r)) for r in cur.fetchall()]
+
+    # analyses ------------------------------------------------------------
+    def save_analysis(self, uuid: str, result: dict) -> None:
+        row = {"capture_uuid": uuid, "version": result["analysis_version"],
+               "created_at": _now(), "result": json.dumps(result)}
+        cap = self.db.execute("SELECT tube, started_at, complete FROM captures WHERE uuid = ?",
+                              [uuid]).fetchone()
+        try:
+            with self.transaction() as conn:
+                for table in ("analyses", "section_metrics"):
+                    conn.execute(f"DELETE FROM {table} WHERE capture_uuid = ? AND version = ?",
+                                 [uuid, row["version"]])
+                _insert(conn, "analyses", row)
+                for m in metric_rows(uuid, row["version"], result, cap[0], cap[1],
+                                     bool(cap[2])):
+                    _insert(conn, "section_metrics", m)
+        except sqlite3.DatabaseError as e:
+            raise self._error(f"analysis of {uuid} not stored in", e) from None
+
+    def analysis(self, uuid: str, version: str | None = None) -> dict | None:
+        """The analysis of a capture: of the given version, else the newest."""
+        sql = "SELECT result FROM analyses WHERE capture_uuid = ?"
+        args = [uuid]
+        if version:
+            sql += " AND version = ?"
+            args.append(version)
+        sql += " ORDER BY created_at DESC, version DESC LIMIT 1"
+        row = self.db.execute(sql, args).fetchone()
+        return json.loads(row[0]) if row else None
+
+    def uuids_needing_analysis(self, version: str, force: bool = False) -> list[str]:
+        sql = "SELECT uuid FROM captures"
+        if not force:
+            sql += (" WHERE uuid NOT IN (SELECT capture_uuid FROM analyses "
+                    "WHERE version = ?)")
+        sql += " ORDER BY started_at, uuid"
+        return [r[0] for r in self.db.execute(sql, [] if force else [version]).fetchall()]
+
+    def history_cold_r20(self, tube: str, section: str, before: str) -> float | None:
+        """Median cold resistance at 20 C of this tube section's earlier cold
+        starts (newest analysis of each), or None without history."""
+        rows = self.db.execute(
+            """SELECT a.result FROM captures c JOIN analyses a ON a.capture_uuid = c.uuid
+               WHERE c.tube = ? AND instr(c.section, ?) > 0 AND c.started_at < ?
+               AND c.complete = 1 ORDER BY c.started_at""", [tube, section, before]).fetchall()
+        vals = []
+        for (res,) in rows:
+            m = json.loads(res).get("sections", {}).get(section, {})
+            if m.get("cold_start_ok") and m.get("cold_resistance_20c_ohm"):
+                vals.append(m["cold_resistance_20c_ohm"])
+        if not vals:
+            return None
+        vals.sort()
+        mid = len(vals) // 2
+        return vals[mid] if len(vals) % 2 else 0.5 * (vals[mid - 1] + vals[mid])
+
+    def save_calibration(self, cal: dict) -> None:
+        with self.transaction() as conn:
+            conn.execute("INSERT INTO calibrations (board, at, data) VALUES (?, ?, ?)",
+                         [cal.get("board"), cal.get("at"), json.dumps(cal)])
+
+    def calibrations(self, board: str | None = None) -> list[dict]:
+        sql = "SELECT data FROM calibrations" + (" WHERE board = ?" if board else "")
+        return [json.loads(r[0]) for r in self.db.execute(sql + " ORDER BY at",
+                                                          [board] if board else []).fetchall()]
+
+    def tube(self, label: str) -> dict | None:
+        rows = list(self.db["tubes"].rows_where("label = ?", [label]))
+        return rows[0] if rows else None

@@ -1,0 +1,135 @@
+"""Pictures: a start-up curve as a terminal plot (plotext) and a figure
+(matplotlib), both on a log time axis, which suits a curve whose action is in
+the first milliseconds and whose end is tens of seconds later; and a tube's
+metric trends as terminal charts.
+
+Terminal plots come back as text with ANSI colour; the command line decides
+whether the colour reaches the screen."""
+
+import numpy as np
+
+from ..analysis.curve import Curve
+
+
+def _log_pick(t: np.ndarray, n: int) -> np.ndarray:
+    """Indices of about n samples spread evenly in log time (t > 0)."""
+    pos = np.nonzero(t > 0)[0]
+    if len(pos) <= n:
+        return pos
+    targets = np.geomspace(t[pos[0]], t[pos[-1]], n)
+    return np.unique(pos[np.clip(np.searchsorted(t[pos], targets), 0, len(pos) - 1)])
+
+
+def terminal_plot(c: Curve, width: int = 100, height: int = 20, title: str = "") -> str:
+    import plotext as plt
+    k = _log_pick(c.t, 4 * width)
+    plt.clear_figure()
+    plt.plotsize(width, height)
+    plt.xscale("log")
+    plt.title(title or "heater current after switch-on")
+    plt.xlabel("time after switch-on, s (log)")
+    plt.plot(c.t[k].tolist(), c.i[k].tolist(), label="current, A", marker="braille")
+    plt.theme("clear")
+    return plt.build()
+
+
+# each section its own colour and marker, the same as in the report's figures
+# (matplotlib's C0 and C1): the letter itself marks the point, so the sections
+# stay apart without colour
+SECTION_MARKS = {"A": ("blue", "A"), "B": ("orange", "B")}
+BAND_NOISE_UNITS = 2.0  # the band drawn around a baseline, in noise units
+
+
+def trend_charts(result: dict, noise_floor: dict, width: int = 60, height: int = 14) -> list[str]:
+    """One terminal chart per metric with at least two scored points: each
+    section's points (its letter as marker, its colour), and for a section with
+    two points or more its baseline's noise band (baseline +- 2 noise units,
+    dotted) and its limit (x). The y axis always spans the band and the limit,
+    so a change inside the noise looks like one."""
+    import plotext as plt
+
+    from ..judgement.scoring import LABELS, _parse_at
+    charts = []
+    scored = [c for c in result["captures"] if c["scored"]]
+    if not scored:
+        return charts
+    t0 = min(_parse_at(c["at"]) for c in scored)
+    for m, (label, unit) in LABELS.items():
+        series = {}
+        for c in scored:
+            if c.get(m) is not None:
+                days = (_parse_at(c["at"]) - t0).total_seconds() / 86400
+                series.setdefault(c["section"], []).append((days, c[m]))
+        if not any(len(v) >= 2 for v in series.values()):
+            continue
+        plt.clear_figure()
+        plt.plotsize(width, height)
+        plt.theme("clear")
+        x_end = max(max(d for d, _ in v) for v in series.values()) or 1.0
+        ys = [y for v in series.values() for _, y in v]
+        # the band and limit first, so that the points are drawn over them
+        for sec, pts in sorted(series.items()):
+            if len(pts) < 2:
+                continue
+            colour = SECTION_MARKS.get(sec, ("green", sec[:1]))[0]
+            s = result["sections"].get(sec, {}).get("metrics", {}).get(m, {})
+            centre = s.get("baseline")
+            if centre is None:  # no baseline yet: the noise around the median
+                centre = sorted(y for _, y in pts)[len(pts) // 2]
+            floor = noise_floor.get(m, 0.0) * (1.0 if m == "flash_index" else abs(centre))
+            half = BAND_NOISE_UNITS * max(s.get("scale") or 0.0, floor)
+            for y in (centre - half, centre + half):
+                plt.plot([0, x_end], [y, y], marker=".", color=colour)
+                ys.append(y)
+            if s.get("limit") is not None:
+                plt.plot([0, x_end], [s["limit"]] * 2, marker="x", color=colour)
+                ys.append(s["limit"])
+        for sec, pts in sorted(series.items()):
+            colour, mark = SECTION_MARKS.get(sec, ("green", sec[:1]))
+            plt.scatter([d for d, _ in pts], [y for _, y in pts], marker=mark, color=colour)
+        lo, hi = min(ys), max(ys)
+        pad = 0.05 * (hi - lo or abs(hi) or 1.0)
+        plt.ylim(lo - pad, hi + pad)
+        plt.title(f"{label} ({unit})" if unit else label)
+        secs = ", ".join(sorted(series))
+        plt.xlabel(f"days since first capture   {secs}: sections   . noise band   x limit")
+        charts.append(plt.build())
+    return charts
+
+
+def figure(c: Curve, analysis: dict, path, title: str = "") -> None:
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    k = _log_pick(c.t, 3000)
+    t, i, v = c.t[k], c.i[k], c.v[k]
+    r = np.where(i > 0.02 * max(i.max(), 1e-9), v / np.where(i > 0, i, 1), np.nan)
+    panels = 3 if c.light is not None else 2
+    fig, ax = plt.subplots(panels, 1, sharex=True, figsize=(8, 2.6 * panels + 0.6))
+    ax[0].plot(t, i, lw=1.2, color="C0")
+    ax[0].set_ylabel("current, A")
+    if analysis.get("hot_current_a"):
+        ax[0].axhline(analysis["hot_current_a"], color="0.5", lw=0.8, ls="--")
+    ax[1].plot(t, r, lw=1.2, color="C1")
+    ax[1].set_ylabel("resistance, ohm")
+    for key, label in (("warmup_50_s", "50 %"), ("warmup_90_s", "90 %"),
+                       ("settle_1pct_s", "settled 1 %")):
+        x = analysis.get(key)
+        if x:
+            for a in ax[:2]:
+                a.axvline(x, color="0.6", lw=0.8, ls=":")
+            ax[1].annotate(label, (x, ax[1].get_ylim()[0]), rotation=90, fontsize=8,
+                           va="bottom", ha="right", color="0.35")
+    if c.light is not None:
+        ax[2].plot(t, c.light[k], lw=1.2, color="C3")
+        ax[2].set_ylabel("light, relative")
+    ax[-1].set_xscale("log")
+    ax[-1].set_xlabel("time after switch-on, s")
+    for a in ax:
+        a.grid(True, which="both", alpha=0.25)
+    fi = analysis.get("flash_index")
+    sub = f"flash index {fi:.3f}" if fi is not None else ""
+    fig.suptitle((title + ("  -  " + sub if sub else "")).strip(" -"))
+    fig.tight_layout()
+    fig.savefig(path, dpi=120)
+    plt.close(fig)

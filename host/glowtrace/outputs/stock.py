@@ -1,0 +1,51 @@
+"""The stock list dealers hand on: one row per tube from the fleet's
+assessments (JSON), flattened to one line per section for a spreadsheet (CSV)."""
+
+import csv
+from pathlib import Path
+
+
+STOCK_FIELDS = ["tube", "type", "owner", "status", "grade", "sections", "hot_current_a",
+                "rated_amps", "current_deviation", "cold_resistance_20c_ohm", "flash_index",
+                "section_imbalance", "drifting", "reasons"]
+
+
+def stock_rows(assessments: list[dict]) -> list[dict]:
+    rows = []
+    for a in assessments:
+        secs = a["sections"]
+        at = a["against_type"]
+
+        def per(metric):
+            vals = {s: v["metrics"].get(metric, {}).get("latest") for s, v in secs.items()}
+            return {s: v for s, v in vals.items() if v is not None}
+        rows.append({
+            "tube": a["tube"], "type": a["type"], "owner": a["owner"], "status": a["status"],
+            "grade": a["grade"], "sections": "".join(secs),
+            "hot_current_a": per("hot_current_a"), "rated_amps": at["rated_amps"],
+            "current_deviation": at["current_deviation"],
+            "cold_resistance_20c_ohm": per("cold_resistance_20c_ohm"),
+            "flash_index": per("flash_index"), "section_imbalance": at["section_imbalance"],
+            "drifting": a["drifting"], "reasons": a["reasons"]})
+    return rows
+
+
+def write_stock_csv(rows: list[dict], path: str | Path) -> None:
+    """One line per tube section, flat columns for a spreadsheet."""
+    with open(path, "w", newline="") as f:
+        w = csv.writer(f)
+        w.writerow(["tube", "type", "owner", "section", "status", "grade", "hot_current_a",
+                    "rated_amps", "current_deviation", "cold_resistance_20c_ohm",
+                    "flash_index", "section_imbalance", "drifting", "reasons"])
+        for r in rows:
+            for sec in r["sections"] or "-":
+                w.writerow([r["tube"], r["type"] or "", r["owner"] or "", sec, r["status"],
+                            r["grade"] or "", _g(r["hot_current_a"].get(sec)),
+                            _g(r["rated_amps"]), _g(r["current_deviation"].get(sec)),
+                            _g(r["cold_resistance_20c_ohm"].get(sec)),
+                            _g(r["flash_index"].get(sec)), _g(r["section_imbalance"]),
+                            int(r["drifting"]), " | ".join(r["reasons"])])
+
+
+def _g(v) -> str:
+    return "" if v is None else f"{v:.6g}"

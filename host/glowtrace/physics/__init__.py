@@ -1,1 +1,0 @@
-"""Physics of heater wire: tungsten's resistance against temperature."""
