@@ -56,7 +56,7 @@ def render_demo(res: dict, db, elapsed: float) -> None:
                  Col("kB", justify="right", priority=4)], rows,
         title=f"Today's captures, stored in {db}")
     fit(ui.out, [Col("tube"), Col("owner", priority=1), Col("status"),
-                 Col("grade", priority=2), Col("why", wrap=True)],
+                 Col("grade"), Col("why", wrap=True)],
         [[a["tube"], a["owner"] or "", ui.status_text(a["status"]), a["grade"] or "-",
           a["reasons"][0]] for a in res["tubes"]], title="The logbook's judgement")
     example = next((a["tube"] for a in res["tubes"] if a["status"] != "steady"),

@@ -108,6 +108,9 @@ def cmd_capture(args) -> int:
     return 0
 
 
+METAVARS = {float: "X", int: "N", str: "TEXT"}
+
+
 def register(sub, common) -> None:
     s = sub.add_parser("ports", parents=[common], help="list serial ports and testers")
     s.add_argument("--no-probe", action="store_true",
@@ -130,6 +133,7 @@ def register(sub, common) -> None:
                            + ", ".join(sorted(tube_presets())))
         else:
             s.add_argument(flag, dest=key, type=setting.kind, choices=setting.choices or None,
+                           metavar=None if setting.choices else METAVARS[setting.kind],
                            help=setting.help)
     s.set_defaults(func=cmd_sim)
 
