@@ -76,7 +76,7 @@ def cmd_reanalyze(args) -> int:
         else:
             bar = Progress(TextColumn("analysing"), BarColumn(),
                            TextColumn("{task.completed}/{task.total}"),
-                           console=ui.err, transient=True)
+                           console=ui.err, transient=True, disable=not ui.err.is_terminal)
             with bar:
                 task = bar.add_task("", total=None)
                 done = reanalyze(store, args.force,

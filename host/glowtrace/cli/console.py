@@ -4,8 +4,9 @@ one palette, JSON output and number formatting.
 Colour is an accent, never the message: every status is printed as its word,
 and the word stays when colour is off. Colour is off when the output is not a
 terminal (a pipe, a file), with NO_COLOR set (no-color.org), with TERM=dumb, or
-with --color never; --color always forces it. Off means no escape sequence at
-all, so saved output and screen readers get plain text."""
+with --color never; --color always forces it. Off means no colour or style
+sequence at all, so saved output and screen readers get plain text (a progress
+bar on a terminal still moves its cursor; it is never written to a pipe)."""
 
 import json
 import os

@@ -67,7 +67,7 @@ def cmd_sim(args) -> int:
 def _progress_bar(max_s: float):
     bar = Progress(TextColumn("[bold]{task.description}"), BarColumn(),
                    TextColumn("{task.fields[status]}"), TimeElapsedColumn(),
-                   console=ui.err, transient=True)
+                   console=ui.err, transient=True, disable=not ui.err.is_terminal)
     task = bar.add_task("capturing", total=max_s, status="")
 
     def update(raw):
