@@ -107,7 +107,10 @@ class MannKendall:
 
 
 def mann_kendall(y, t=None) -> MannKendall:
-    """Trend test of y in time order (sorted by t if given)."""
+    """Trend test of y in time order (sorted by t if given): Mann (1945),
+    Kendall (1975), as in Gilbert (1987) ch. 16: S, its variance with the tie
+    correction, and z = (S - sgn S) / sqrt(Var S) with the continuity
+    correction (S moves in steps of two), two-sided p from the normal."""
     y = [float(v) for v in y]
     if t is not None:
         order = sorted(range(len(y)), key=lambda k: float(t[k]))
@@ -121,7 +124,7 @@ def mann_kendall(y, t=None) -> MannKendall:
             s += (d > 0) - (d < 0)
     ties = [c for c in Counter(y).values() if c > 1]
     var = (n * (n - 1) * (2 * n + 5) - sum(c * (c - 1) * (2 * c + 5) for c in ties)) / 18.0
-    z = s / math.sqrt(var) if var > 0 else 0.0
+    z = (s - (s > 0) + (s < 0)) / math.sqrt(var) if var > 0 else 0.0
     p = math.erfc(abs(z) / math.sqrt(2))
     n0 = n * (n - 1) / 2
     n2 = sum(c * (c - 1) / 2 for c in ties)
