@@ -59,7 +59,8 @@ class SimBoard:
                 tau_sleeve_s=tube.get("tau_sleeve_s", 4.0),
                 flash_share=scenario.get("flash_" + s, 0.0),
                 tau_flash_s=tube.get("tau_flash_s", 0.12),
-                ambient_c=amb)
+                ambient_c=amb,
+                wire_over_sleeve_k=tube.get("wire_over_sleeve_k", 150.0))
             h.extra_ohm = scenario.get("contact_ohm", 0.01)
             # a tube switched off a moment ago is still warm: not a cold start
             warm = scenario.get("preheat_k", 0.0)

@@ -103,3 +103,17 @@ def test_flashing_section_shows_light_overshoot_and_fast_rise():
         r0, rh = c.r[:5].mean(), c.r[-50:].mean()
         return (np.interp(0.3, c.ton, c.r) - r0) / (rh - r0)
     assert share(cf) > share(ce) + 0.05
+
+
+def test_simulator_presets_agree_with_the_catalogue():
+    """A preset's heater is its catalogue type's: rating per section, one
+    heater or two, filament or cathode."""
+    from glowtrace import catalogue
+    from glowtrace.tester.sim import tube_presets
+    cat = catalogue.load()
+    for name, p in tube_presets().items():
+        t = cat.get(name)
+        rating = t.section_rating()
+        assert (p["section_v"], p["section_a"]) == (rating.volts, rating.amps), name
+        assert p["dual"] == bool(t.centre_tapped), name
+        assert p.get("filament", False) == bool(t.filament), name
