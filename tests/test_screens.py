@@ -61,7 +61,7 @@ def test_history_keeps_dates_and_figures_whole(demo_run, capsys, monkeypatch, wi
     whole = [label]
     for c in result["captures"]:
         whole += [c["at"][:10], console.fmt(c["cold_resistance_20c_ohm"], 4),
-                  console.fmt(c["hot_current_a"], 4), console.fmt(c["flash_index"], 2)]
+                  console.fmt(c["rated_hot_current_a"], 4), console.fmt(c["flash_index"], 2)]
     assert_whole(out, width, whole)
     # 0.0099 and 0.071 read as themselves, not as "0.0…"
     assert any(console.fmt(c["flash_index"], 2) not in ("0", "0.0") for c in result["captures"])

@@ -10,8 +10,10 @@ from . import paths
 from .errors import GlowtraceError
 
 DEFAULTS = Path(__file__).resolve().parent / "data" / "scoring.toml"
-METRICS = ("cold_resistance_20c_ohm", "hot_current_a", "inrush_20c", "warmup_90_s",
-           "settle_1pct_s", "flash_index")
+# the figures a tube is judged on: its own, at its rated heater voltage from a
+# stiff supply where the bench could have moved them (analysis 2.0)
+METRICS = ("cold_resistance_20c_ohm", "rated_hot_current_a", "rated_inrush_ratio",
+           "rated_warmup_90_s", "rated_settle_1pct_s", "series_warmup_s", "flash_index")
 
 
 def _merge(base: dict, over: dict) -> dict:

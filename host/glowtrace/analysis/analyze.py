@@ -8,11 +8,12 @@ from ..catalogue import TubeType
 from .physics.tungsten import ZERO_C_K, HeaterWire
 from . import ANALYSIS_VERSION, thermal
 from .curve import Curve, from_capture
-from .metrics import TAIL_S, first_crossing, measure
+from .metrics import SETTLE_BAND, TAIL_S, first_crossing, last_entry, measure
 
 FLASH_TRY_RMS = 2.0      # fit the flash model when the even one misses by more
 FLASH_MIN_GAIN = 25.0    # chi-square gain for the two extra parameters to count
 POOR_FIT_RMS = 3.0
+NORMALISE_LIMIT = 0.15   # heater voltage further than this from rated: not normalised
 
 
 def _sig(x, digits=6):
@@ -31,16 +32,64 @@ def _sig(x, digits=6):
 
 def predict(model: thermal.ThermalModel, rated_v: float, rated_a: float,
             t_end: float | None = None) -> dict:
-    """What the fitted heater does under standard conditions."""
+    """What the fitted heater does under standard conditions: at its rated
+    voltage from a stiff supply (hot current, warm-up, settling), and in the
+    series-string test circuit."""
     if t_end is None:  # long enough to settle: many sleeve time constants
         t_end = min(600.0, max(30.0, 25.0 * model.tau_s + 10.0 * model.tau_w))
-    t, r, _, _ = model.in_circuit(rated_v, 0.0, t_end=t_end, n=300)
+    t, r, i, _ = model.in_circuit(rated_v, 0.0, t_end=t_end, n=300)
     warm90 = first_crossing(t, r, r[0] + 0.9 * (r[-1] - r[0]))
+    hot = float(i[-1])
+    settle = last_entry(t, i, hot, SETTLE_BAND * hot)
     # series-string test circuit: 4 x rated volts through 3 x rated V / rated A;
     # warm-up time = heater voltage reaching 80 % of rated
     t, _, _, vh = model.in_circuit(4 * rated_v, 3 * rated_v / rated_a, t_end=t_end, n=300)
     series = first_crossing(t, vh, 0.8 * rated_v)
-    return {"rated_warmup_90_s": warm90, "series_warmup_s": series}
+    return {"rated_hot_current_a": hot, "rated_warmup_90_s": warm90,
+            "rated_settle_1pct_s": settle, "series_warmup_s": series}
+
+
+def current_sensitivity(wire: HeaterWire, hot_cold_ratio: float, ambient_c: float) -> float:
+    """d ln I / d ln V of a heater in its hot state, for a heater that loses
+    its power by radiation, P = K (T^4 - Ta^4), with the resistance of its
+    tungsten (alloy) wire, R ~ a(T): with n = d ln P / d ln T and
+    b = d ln R / d ln T, V^2 = P R gives s = (n - b) / (n + b). About 0.5 at a
+    cathode heater's 1100-1400 K (b about 1.2, n about 4)."""
+    t_hot = float(wire.temperature(hot_cold_ratio))
+    ta = ambient_c + ZERO_C_K
+    n = 4.0 * t_hot ** 4 / (t_hot ** 4 - ta ** 4)
+    dt = 1.0
+    b = (math.log(float(wire.ratio(t_hot + dt))) - math.log(float(wire.ratio(t_hot - dt)))) \
+        / (math.log(t_hot + dt) - math.log(t_hot - dt))
+    return (n - b) / (n + b)
+
+
+def at_rated(out: dict, model, wire: HeaterWire, rated_v: float, rated_a: float,
+             v_hot: float, ambient_c: float, warnings: list) -> None:
+    """The tube's own figures at its rated voltage from a stiff supply, beside
+    the measured ones: from the fitted model where there is one, else the hot
+    current by the radiative sensitivity (current_sensitivity); the rated
+    inrush ratio is the rated voltage over the cold resistance at 20 C, over
+    that hot current. Not given when the test ran too far from rated."""
+    keys = ("rated_hot_current_a", "rated_warmup_90_s", "rated_settle_1pct_s",
+            "series_warmup_s", "rated_inrush_ratio")
+    out.update(dict.fromkeys(keys), rated_basis=None)
+    if not (rated_v and rated_a and out.get("hot_current_a") and v_hot > 0):
+        return
+    if abs(v_hot / rated_v - 1) > NORMALISE_LIMIT:
+        warnings.append(f"the heater ran at {v_hot:.2f} V, too far from its rated {rated_v:g} V "
+                        f"(more than {100 * NORMALISE_LIMIT:.0f} %) to give figures at rated "
+                        "voltage: test it nearer its rating")
+        return
+    if model is not None:
+        out.update(predict(model, rated_v, rated_a))
+        out["rated_basis"] = "fitted model"
+    else:
+        s = current_sensitivity(wire, out["hot_cold_ratio"], ambient_c)
+        out["rated_hot_current_a"] = out["hot_current_a"] * (rated_v / v_hot) ** s
+        out["rated_basis"] = f"radiative sensitivity {s:.2f}"
+    if out["rated_peak_current_a"] and out["rated_hot_current_a"]:
+        out["rated_inrush_ratio"] = out["rated_peak_current_a"] / out["rated_hot_current_a"]
 
 
 def analyze_curve(c: Curve, ambient_c: float, tube_type: TubeType | None = None,
@@ -52,8 +101,7 @@ def analyze_curve(c: Curve, ambient_c: float, tube_type: TubeType | None = None,
     wire = HeaterWire(tube_type.tungsten_k if tube_type else 1.0)
     m = measure(c, ambient_c, wire, rated_v, rated_a, history_cold_r20)
     out = dict(m.values)
-    out.update(flash_index=None, rated_peak_current_a=None, rated_warmup_90_s=None,
-               series_warmup_s=None)
+    out.update(flash_index=None, rated_peak_current_a=None)
     warnings = list(m.warnings)
     model = None
     if m.t is None:
@@ -83,10 +131,10 @@ def analyze_curve(c: Curve, ambient_c: float, tube_type: TubeType | None = None,
         out["thermal_model"] = dict(model.as_dict(), fit_rms=best.rms, fit_evaluations=best.nfev)
         if tube_type is not None and tube_type.filament:
             out["flash_index"] = None  # a bare filament has no sleeve to lag behind
-        if rated_v and rated_a:
-            out.update(predict(model, rated_v, rated_a))
     if rated_v and out["cold_resistance_20c_ohm"]:
         out["rated_peak_current_a"] = rated_v / out["cold_resistance_20c_ohm"]
+    if m.t is not None:
+        at_rated(out, model, wire, rated_v, rated_a, m.v_end, ambient_c, warnings)
     if c.light is not None:
         out["light_overshoot"] = light_overshoot(c)
     out["rated_volts"], out["rated_amps"] = rated_v, rated_a

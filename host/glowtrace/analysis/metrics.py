@@ -17,7 +17,8 @@ TAIL_S = 1.0           # the final state level is the mean over this last stretc
 COLD_FIT_S = 0.002     # cold resistance: straight line through the first 2 ms...
 COLD_FIT_MIN = 8       # ... or through at least this many samples
 SMOOTH_REL = 0.02      # smoothing window for crossings: +-2 % of the time
-SETTLE_BAND = 0.01
+SETTLE_BAND = 0.01       # hot-current settling: within 1 % of the final current
+SETTLE_181_TOL = 0.01    # IEEE 181 settling: +-1 % of the transition's amplitude
 SAG_LIMIT = 0.03       # supply sag during inrush worth a warning
 RATED_V_LIMIT = 0.10   # heater voltage this far from rated is worth a warning
 COLD_RATIO_MIN = 3.0   # a cold tungsten heater's hot/cold ratio is well above this
@@ -61,13 +62,39 @@ def first_crossing(t: np.ndarray, y: np.ndarray, level: float) -> float | None:
     return float(t[k - 1] + (level - y0) / (y1 - y0) * (t[k] - t[k - 1]))
 
 
+def last_entry(t: np.ndarray, y: np.ndarray, level: float, band: float) -> float | None:
+    """When y last entered [level - band, level + band] and stayed; None if it
+    is outside at the end (or never inside)."""
+    outside = np.nonzero(np.abs(y - level) > band)[0]
+    if len(outside) == 0:
+        return float(t[0])
+    if outside[-1] >= len(t) - 1:
+        return None
+    return float(t[outside[-1] + 1])
+
+
+def settling_181(t: np.ndarray, i_s: np.ndarray, peak: float, i_hot: float) -> float | None:
+    """IEEE Std 181 settling time of the current's transition from its peak
+    (initial state level) to the hot current (final state level): from the
+    50 % reference-level instant to the last entry into a band of
+    +-SETTLE_181_TOL of the amplitude about the final level."""
+    amp = peak - i_hot
+    if amp <= 0.05 * i_hot:
+        return None
+    t50 = first_crossing(t, -i_s, -(i_hot + 0.5 * amp))  # the falling 50 % instant
+    t_in = last_entry(t, i_s, i_hot, SETTLE_181_TOL * amp)
+    if t50 is None or t_in is None or t_in > t[-1] - TAIL_S:
+        return None
+    return max(t_in - t50, 0.0)
+
+
 def measure(c: Curve, ambient_c: float, wire: HeaterWire, rated_v: float | None = None,
             rated_a: float | None = None, history_cold_r20: float | None = None) -> Measured:
     w: list[str] = []
     vals = dict.fromkeys([
         "peak_current_a", "cold_resistance_ohm", "cold_resistance_20c_ohm", "hot_current_a",
         "hot_resistance_ohm", "hot_power_w", "hot_cold_ratio", "inrush_ratio",
-        "warmup_50_s", "warmup_90_s", "settle_1pct_s"])
+        "warmup_50_s", "warmup_90_s", "settle_1pct_s", "settling_181_s"])
     vals["cold_start_ok"] = False
     pre, on = c.t < 0, c.t >= 0
     if on.sum() < 10:
@@ -151,6 +178,7 @@ def measure(c: Curve, ambient_c: float, wire: HeaterWire, rated_v: float | None 
         vals["settle_1pct_s"] = float(t[k + 1])
     if noise > 0.5 * band:
         w.append(f"current noise ({noise:.2g} A rms) is large against the 1 % band")
+    vals["settling_181_s"] = settling_181(t, i_s, peak, i_hot)
 
     # supply and rating checks
     early = t <= 0.02

@@ -12,9 +12,11 @@ from .common import db_path
 from .tables import Col, fit, hanging
 
 # history's figure columns: analysis key, header, significant digits, priority
-HISTORY_FIGURES = [("cold_resistance_20c_ohm", "R20", 4, 0), ("hot_current_a", "I hot", 4, 0),
-                   ("inrush_ratio", "inr.", 3, 1), ("warmup_90_s", "w90 s", 3, 1),
-                   ("settle_1pct_s", "set. s", 3, 2), ("flash_index", "flash", 2, 0)]
+HISTORY_FIGURES = [("cold_resistance_20c_ohm", "R20", 4, 0),
+                   ("rated_hot_current_a", "I hot", 4, 0),
+                   ("rated_inrush_ratio", "inr.", 3, 1), ("rated_warmup_90_s", "w90 s", 3, 1),
+                   ("rated_settle_1pct_s", "set. s", 3, 2), ("series_warmup_s", "ser. s", 3, 2),
+                   ("flash_index", "flash", 2, 0)]
 
 
 def cmd_history(args) -> int:
@@ -47,8 +49,10 @@ def render_history(r: dict, noise_floor: dict) -> None:
     title = f"{r['tube']} ({r['type'] or 'type unknown'})" + (
         f", owner {r['owner']}" if r["owner"] else "")
     fit(ui.out, cols, rows, title=title,
-        caption="s section, R20 cold resistance at 20 C (ohm), I hot hot current (A), inr. "
-                "inrush ratio, w90 warm-up to 90 %, set. settling to 1 %, flash flash index")
+        caption="s section, R20 cold resistance at 20 C (ohm); at rated voltage from a "
+                "stiff supply: I hot hot current (A), inr. inrush ratio (rated volts / R20 "
+                "over I hot), w90 warm-up to 90 %, set. hot-current settling to 1 %; ser. "
+                "series-string warm-up to 80 %; flash flash index")
     hanging(ui.out, [f"({n}) {why}" for n, why in enumerate(reasons, 1)], bullet="  ")
     from ..outputs.plots import trend_charts
     for chart in trend_charts(r, noise_floor, width=min(ui.out.width, 72)):
@@ -75,12 +79,12 @@ def cmd_stock(args) -> int:
     def render(rows):
         table = [[r["tube"], r["type"] or "", r["owner"] or "", r["grade"] or "-",
                   ui.status_text(r["status"]),
-                  " ".join(f"{v:.4g}" for v in r["hot_current_a"].values()) or "-",
+                  " ".join(f"{v:.4g}" for v in r["rated_hot_current_a"].values()) or "-",
                   " ".join(f"{100 * v:+.1f}%" for v in r["current_deviation"].values()) or "-",
                   " ".join(f"{v:.2g}" for v in r["flash_index"].values()) or "-",
                   ui.fmt(r["section_imbalance"], 2)] for r in rows]
         fit(ui.out, [Col("tube"), Col("type", priority=1), Col("owner", priority=3),
-                     Col("grade"), Col("status"), Col("hot A", priority=2),
+                     Col("grade"), Col("status"), Col("hot A at rated V", priority=2),
                      Col("vs rated"), Col("flash", priority=2),
                      Col("imbalance", priority=4)], table)
     if args.json or not args.csv:

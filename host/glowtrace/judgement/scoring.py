@@ -12,19 +12,24 @@ from datetime import datetime, timedelta, timezone
 import numpy as np
 
 from .. import catalogue
+from ..analysis import ANALYSIS_VERSION
 from . import charts
 from ..config import METRICS
 from ..errors import GlowtraceError
 from ..logbook.store import Store
 
+# the scored figures (config.METRICS): the tube's own, at its rated voltage
 LABELS = {
     "cold_resistance_20c_ohm": ("cold resistance at 20 C", "ohm"),
-    "hot_current_a": ("hot current", "A"),
-    "inrush_20c": ("inrush at 20 C (peak over hot current)", "x"),
-    "warmup_90_s": ("warm-up to 90 %", "s"),
-    "settle_1pct_s": ("settling time (1 %)", "s"),
+    "rated_hot_current_a": ("hot current at rated voltage", "A"),
+    "rated_inrush_ratio": ("inrush at rated voltage, 20 C (over hot current)", "x"),
+    "rated_warmup_90_s": ("warm-up to 90 % at rated voltage", "s"),
+    "rated_settle_1pct_s": ("hot-current settling (1 %) at rated voltage", "s"),
+    "series_warmup_s": ("series-string warm-up (to 80 %)", "s"),
     "flash_index": ("flash index", ""),
 }
+# measured figures of the latest scored capture, shown beside the rated ones
+MEASURED = ("hot_current_a", "inrush_ratio", "warmup_90_s", "settle_1pct_s")
 # statuses, worst first: words of our own
 STATUS_ORDER = ("heater fault", "at limit", "drifting", "watch", "new", "steady")
 SECONDS_PER_YEAR = 365.25 * 86400
@@ -154,7 +159,13 @@ def score_section(rows: list[dict], cfg: dict, section: str,
                   baseline_uuids: list[str] | None = None) -> dict:
     scored = [r for r in rows if r["scored"]]
     n_base = int(cfg["baseline"]["count"])
-    out = {"captures": len(rows), "scored": len(scored), "metrics": {}, "reasons": []}
+    out = {"captures": len(rows), "scored": len(scored), "metrics": {}, "reasons": [],
+           "measured": {c: scored[-1][c] for c in MEASURED} if scored else {}}
+    stale = sorted({r["version"] for r in rows if r["version"] != ANALYSIS_VERSION})
+    if stale:
+        out["reasons"].append(
+            f"section {section}: captures analysed by analysis {', '.join(stale)} lack the "
+            f"figures at rated voltage this judgement uses: run `glowtrace reanalyze`")
     if rows and _excluded_fault(rows[-1]):
         out["status"] = "heater fault"
         out["reasons"].append(f"section {section}: the latest capture shows "
@@ -301,24 +312,27 @@ def against_type(result: dict, sections: dict, tube_type, cfg: dict,
         rated = tube_type.section_rating().amps
         out["rated_amps"] = rated
         for sec, row in latest.items():
-            if row and row["hot_current_a"]:
-                dev = row["hot_current_a"] / rated - 1
+            # the tube's own hot current at its rated voltage, whatever the
+            # bench's supply was set to
+            if row and row["rated_hot_current_a"]:
+                dev = row["rated_hot_current_a"] / rated - 1
                 out["current_deviation"][sec] = dev
                 if abs(dev) > tol:
                     out["reasons"].append(
-                        f"section {sec}: hot current {row['hot_current_a']:.3f} A is "
-                        f"{100 * dev:+.1f} % from the rated {rated:g} A (tolerance "
-                        f"{100 * tol:g} %)")
+                        f"section {sec}: hot current at rated voltage "
+                        f"{row['rated_hot_current_a']:.3f} A is {100 * dev:+.1f} % from the "
+                        f"rated {rated:g} A (tolerance {100 * tol:g} %)")
         if out["current_deviation"]:
             out["within_tolerance"] = all(abs(d) <= tol for d in out["current_deviation"].values())
     if population:
-        n = len(population.get("hot_current_a", []))
+        n = len(population.get("rated_hot_current_a", []))
         if n >= cfg["type"]["min_population"]:
             for sec, row in latest.items():
                 if row:
                     out["percentile"][sec] = {
                         m: percentile(row[m], population[m]) for m in
-                        ("hot_current_a", "cold_resistance_20c_ohm") if row[m] is not None}
+                        ("rated_hot_current_a", "cold_resistance_20c_ohm")
+                        if row[m] is not None}
             out["population"] = n
     a, b = latest.get("A"), latest.get("B")
     if a and b and a["hot_resistance_ohm"] and b["hot_resistance_ohm"]:

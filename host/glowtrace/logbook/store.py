@@ -53,6 +53,9 @@ def _m2_analyses(db: sqlite_utils.Database) -> None:
 
 METRIC_COLUMNS = ("cold_resistance_20c_ohm", "hot_current_a", "hot_resistance_ohm",
                   "inrush_ratio", "inrush_20c", "warmup_90_s", "settle_1pct_s", "flash_index")
+# schema 5: the figures at rated conditions that scoring reads (analysis 2.0)
+RATED_COLUMNS = ("rated_hot_current_a", "rated_inrush_ratio", "rated_warmup_90_s",
+                 "rated_settle_1pct_s", "series_warmup_s")
 # warnings that keep a capture out of history scoring (it is still shown)
 SERIOUS = ("open heater", "shorted", "clipped", "too short", "not analysed",
            "no resistance rise", "not a cold start", "incomplete", "no samples")
@@ -78,7 +81,9 @@ def _m3_records(db: sqlite_utils.Database) -> None:
                       ).fetchall()
     for uuid, version, result, tube, at, complete in rows:
         for row in metric_rows(uuid, version, json.loads(result), tube, at, bool(complete)):
-            _insert(db.conn, "section_metrics", row)
+            # the columns of schema 3 only: later migrations add the rest
+            _insert(db.conn, "section_metrics",
+                    {k: v for k, v in row.items() if k not in RATED_COLUMNS})
 
 
 def metric_rows(uuid: str, version: str, result: dict, tube: str | None, at: str,
@@ -98,7 +103,7 @@ def metric_rows(uuid: str, version: str, result: dict, tube: str | None, at: str
                "at": at, "ambient_c": m.get("ambient_c"),
                "cold_start_ok": int(bool(m.get("cold_start_ok"))),
                "scored": int(not why), "excluded": "; ".join(dict.fromkeys(why)) or None}
-        row.update({c: m.get(c) for c in METRIC_COLUMNS})
+        row.update({c: m.get(c) for c in METRIC_COLUMNS + RATED_COLUMNS})
         # the inrush the tube would show at 20 C: room temperature changes the
         # cold resistance, and with it the inrush, but not the tube
         if m.get("inrush_ratio") and m.get("cold_resistance_20c_ohm"):
@@ -113,12 +118,20 @@ def _m4_calibrations(db: sqlite_utils.Database) -> None:
     db["calibrations"].create_index(["board", "at"])
 
 
+def _m5_rated_figures(db: sqlite_utils.Database) -> None:
+    # analyses before 2.0 have no rated figures: their columns stay empty
+    # until `glowtrace reanalyze` (scoring says so)
+    for c in RATED_COLUMNS:
+        db.execute(f"ALTER TABLE section_metrics ADD COLUMN {c} REAL")
+
+
 # (version, name, function). Append only: never edit a released migration.
 MIGRATIONS = [
     (1, "initial: tubes, captures, capture_samples", _m1_initial),
     (2, "analyses of captures, per analysis version", _m2_analyses),
     (3, "owners, capture source, section metrics, baselines", _m3_records),
     (4, "calibrations of testers", _m4_calibrations),
+    (5, "figures at rated conditions in section metrics", _m5_rated_figures),
 ]
 LATEST = MIGRATIONS[-1][0]
 

@@ -112,16 +112,17 @@ def write_report(store: Store, label: str, cfg: dict, path) -> dict:
         + (f" &nbsp; Grade: <b>{e(result['grade'])}</b>" if result["grade"] else "") + "</p>",
         "<ul>" + "".join(f"<li>{e(r)}</li>" for r in result["reasons"]) + "</ul>",
         "<h2>Captures</h2><table><tr><th>date (UTC)</th><th>section</th>"
-        "<th>cold R at 20 C, ohm</th><th>hot current, A</th><th>inrush, x</th>"
-        "<th>warm-up 90 %, s</th><th>flash index</th><th>scored</th></tr>",
+        "<th>cold R at 20 C, ohm</th><th>hot current at rated V, A</th>"
+        "<th>inrush at rated V, x</th><th>warm-up 90 % at rated V, s</th>"
+        "<th>flash index</th><th>scored</th></tr>",
     ]
     for c in caps:
         def f(k, d=4):
             v = c.get(k)
             return "-" if v is None else f"{v:.{d}g}"
         parts.append(f"<tr><td>{e(c['at'][:16].replace('T', ' '))}</td><td>{c['section']}</td>"
-                     f"<td>{f('cold_resistance_20c_ohm')}</td><td>{f('hot_current_a')}</td>"
-                     f"<td>{f('inrush_ratio', 3)}</td><td>{f('warmup_90_s', 3)}</td>"
+                     f"<td>{f('cold_resistance_20c_ohm')}</td><td>{f('rated_hot_current_a')}</td>"
+                     f"<td>{f('rated_inrush_ratio', 3)}</td><td>{f('rated_warmup_90_s', 3)}</td>"
                      f"<td>{f('flash_index', 2)}</td><td>"
                      f"{'yes' if c['scored'] else e(c['excluded'] or 'no')}</td></tr>")
     parts.append("</table>")

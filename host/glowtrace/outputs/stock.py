@@ -6,6 +6,7 @@ from pathlib import Path
 
 
 STOCK_FIELDS = ["tube", "type", "owner", "status", "grade", "sections", "hot_current_a",
+                "rated_hot_current_a",
                 "rated_amps", "current_deviation", "cold_resistance_20c_ohm", "flash_index",
                 "section_imbalance", "drifting", "reasons"]
 
@@ -22,7 +23,9 @@ def stock_rows(assessments: list[dict]) -> list[dict]:
         rows.append({
             "tube": a["tube"], "type": a["type"], "owner": a["owner"], "status": a["status"],
             "grade": a["grade"], "sections": "".join(secs),
-            "hot_current_a": per("hot_current_a"), "rated_amps": at["rated_amps"],
+            "hot_current_a": {s: v["measured"]["hot_current_a"] for s, v in secs.items()
+                              if v.get("measured", {}).get("hot_current_a") is not None},
+            "rated_hot_current_a": per("rated_hot_current_a"), "rated_amps": at["rated_amps"],
             "current_deviation": at["current_deviation"],
             "cold_resistance_20c_ohm": per("cold_resistance_20c_ohm"),
             "flash_index": per("flash_index"), "section_imbalance": at["section_imbalance"],
@@ -35,12 +38,14 @@ def write_stock_csv(rows: list[dict], path: str | Path) -> None:
     with open(path, "w", newline="") as f:
         w = csv.writer(f)
         w.writerow(["tube", "type", "owner", "section", "status", "grade", "hot_current_a",
+                    "rated_hot_current_a",
                     "rated_amps", "current_deviation", "cold_resistance_20c_ohm",
                     "flash_index", "section_imbalance", "drifting", "reasons"])
         for r in rows:
             for sec in r["sections"] or "-":
                 w.writerow([r["tube"], r["type"] or "", r["owner"] or "", sec, r["status"],
                             r["grade"] or "", _g(r["hot_current_a"].get(sec)),
+                            _g(r["rated_hot_current_a"].get(sec)),
                             _g(r["rated_amps"]), _g(r["current_deviation"].get(sec)),
                             _g(r["cold_resistance_20c_ohm"].get(sec)),
                             _g(r["flash_index"].get(sec)), _g(r["section_imbalance"]),
