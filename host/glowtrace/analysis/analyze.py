@@ -156,6 +156,58 @@ def light_overshoot(c: Curve) -> float | None:
     return float(lt.max()) / settled
 
 
+# trips that say something about the heater (the others are the bench's:
+# the host went silent, the firmware failed, the on-time ran out)
+HEATER_TRIPS = ("open_heater", "over_current")
+
+
+def judge_trip(raw, sections: dict) -> None:
+    """A capture the tester stopped for an open or over-current heater: the
+    section that tripped is a heater fault, and a section cut short with it is
+    not judged (no figures, no warnings of its own), never called shorted.
+    An over-current trip on the low range is the range's, not the tube's."""
+    cause = (raw.trip or {}).get("cause")
+    if cause not in HEATER_TRIPS or not sections:
+        return
+    at_s = (raw.trip.get("at_us") or 0) / 1e6
+    if cause == "open_heater":
+        faulty = [s for s, m in sections.items()
+                  if any("open heater" in w for w in m.get("warnings", []))]
+        if not faulty:  # too few samples to see it: the section drawing least
+            faulty = [min(sections, key=lambda s: sections[s].get("peak_current_a") or 0.0)]
+        why = "open heater"
+    else:
+        peaks = {s: m.get("peak_current_a") or 0.0 for s, m in sections.items()}
+        top = max(peaks.values())
+        faulty = [s for s, p in peaks.items() if p >= 0.8 * top] if top > 0 else list(peaks)
+        if raw.params.get("range", "low") == "low":
+            for s in sections:
+                sections[s] = not_judged(f"the low current range tripped at {at_s * 1000:.1f} "
+                                         "ms: capture it on the high range (--range high)")
+            return
+        why = "shorted heater or wiring: over-current on the high range"
+    for s in sections:
+        if s in faulty:
+            m = sections[s]
+            w = [x for x in m.get("warnings", []) if "open heater" in x]
+            if not w:
+                w = [f"{why}: the tester switched off at {at_s * 1000:.1f} ms"]
+            for k in list(m):
+                if k not in ("analysis_version", "peak_current_a", "cold_resistance_ohm",
+                             "cold_resistance_20c_ohm", "ambient_c"):
+                    m[k] = None
+            m.update(warnings=w, heater_fault=why, cold_start_ok=False,
+                     analysis_version=ANALYSIS_VERSION)
+        else:
+            sections[s] = not_judged(f"cut short at {at_s * 1000:.1f} ms when section "
+                                     f"{', '.join(faulty)} tripped ({why})")
+
+
+def not_judged(why: str) -> dict:
+    return {"not_judged": why, "warnings": [], "cold_start_ok": False,
+            "analysis_version": ANALYSIS_VERSION}
+
+
 def analyze_capture(raw, tube_type: TubeType | None = None,
                     history_cold_r20: dict | None = None) -> dict:
     """Every switched section of a tester capture, and their imbalance."""
@@ -171,6 +223,7 @@ def analyze_capture(raw, tube_type: TubeType | None = None,
                              "analysis_version": ANALYSIS_VERSION}
     out = {"analysis_version": ANALYSIS_VERSION, "sections": sections,
            "section_imbalance": None}
+    judge_trip(raw, sections)
     if raw.ambient_c is None:
         out["warnings"] = ["no room temperature recorded: 20 C assumed"]
     a, b = sections.get("A", {}), sections.get("B", {})

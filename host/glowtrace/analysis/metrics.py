@@ -188,12 +188,13 @@ def measure(c: Curve, ambient_c: float, wire: HeaterWire, rated_v: float | None 
         if sag > SAG_LIMIT:
             w.append(f"supply sagged {100 * sag:.0f} % during inrush: the figures are "
                      "measured, the predictions at rated voltage correct for it")
-    if rated_v:
+    hot_state = duration >= 3 * TAIL_S  # a curve cut short has no hot state to judge
+    if rated_v and hot_state:
         if abs(v_hot / rated_v - 1) > RATED_V_LIMIT:
             w.append(f"heater voltage {v_hot:.2f} V is far from its rated {rated_v:g} V")
         if rated_a and r_hot < 0.3 * rated_v / rated_a:
             w.append("resistance far below the rating: shorted heater or wiring")
-    elif r_hot < 0.05:
+    elif hot_state and r_hot < 0.05:
         w.append("resistance below 0.05 ohm: shorted heater or wiring")
 
     # was it a cold start?

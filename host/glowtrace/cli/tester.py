@@ -99,12 +99,20 @@ def cmd_capture(args) -> int:
     s = summary(raw)
     s["database"] = str(db_path(args))
     ui.emit(args, s, capture_summary)
-    if raw.trip and raw.trip["cause"] == "over_current" and args.range == "low":
+    if args.range is None and not args.json:
+        ui.err.print(f"current range: {raw.params.get('range')} (chosen from the type's rated "
+                     "current; --range to choose)", markup=False, highlight=False)
+    cause = (raw.trip or {}).get("cause")
+    if cause == "over_current" and raw.params.get("range") == "low":
         ui.warn("Over-current trip on the low range: a power tube's or rectifier's inrush "
                 "needs --range high. If it trips there too, suspect a shorted heater.")
     if not raw.complete:
         ui.warn(f"Capture incomplete: {raw.incomplete_reason}")
         return 2
+    if cause in ("open_heater", "over_current"):
+        ui.warn(f"The tester switched off: {cause.replace('_', ' ')}. The capture is stored "
+                "and judged as what it is.")
+        return 3
     return 0
 
 
@@ -144,8 +152,9 @@ def register(sub, common) -> None:
     s.add_argument("--section", required=True, choices=["A", "B", "AB"],
                    help="heater section(s) to switch on")
     s.add_argument("--type", help="tube type, e.g. 12AX7 (stored with a new tube)")
-    s.add_argument("--range", choices=["low", "high"], default="low",
-                   help="current range: low to 3.3 A, high to 33 A (default low)")
+    s.add_argument("--range", choices=["low", "high"],
+                   help="current range: low to 3.3 A, high to 33 A (default: high when the "
+                        "type's inrush can reach the low range's trip, else low)")
     s.add_argument("--max-s", type=float, default=60.0, help="longest capture, s (default 60)")
     s.add_argument("--settle-band", type=float, default=0.005,
                    help="relative band for the adaptive end (default 0.005)")

@@ -152,7 +152,9 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
 
 def _excluded_fault(row: dict) -> bool:
     ex = row.get("excluded") or ""
-    return "open heater" in ex or "shorted" in ex
+    if ex.startswith("not judged"):
+        return False
+    return ex.startswith("heater fault") or "open heater" in ex or "shorted" in ex
 
 
 def score_section(rows: list[dict], cfg: dict, section: str,
@@ -345,6 +347,8 @@ def grade(result: dict, cfg: dict) -> str | None:
     """The first grade whose every limit the tube meets; None when it cannot
     be judged (unknown type, no good capture)."""
     at = result["against_type"]
+    if result["status"] == "heater fault":  # judged, and unfit, whatever else
+        return cfg["grade_none"]["name"]
     if not at["current_deviation"]:
         return None
     dev = max(abs(d) for d in at["current_deviation"].values())

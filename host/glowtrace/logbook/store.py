@@ -58,7 +58,8 @@ RATED_COLUMNS = ("rated_hot_current_a", "rated_inrush_ratio", "rated_warmup_90_s
                  "rated_settle_1pct_s", "series_warmup_s")
 # warnings that keep a capture out of history scoring (it is still shown)
 SERIOUS = ("open heater", "shorted", "clipped", "too short", "not analysed",
-           "no resistance rise", "not a cold start", "incomplete", "no samples")
+           "no resistance rise", "not a cold start", "incomplete", "no samples",
+           "too far from its rated")
 
 
 def _m3_records(db: sqlite_utils.Database) -> None:
@@ -95,9 +96,14 @@ def metric_rows(uuid: str, version: str, result: dict, tube: str | None, at: str
     for sec, m in result.get("sections", {}).items():
         why = [w for w in m.get("warnings", []) + ([general] if general else [])
                if any(s in w for s in SERIOUS)]
+        if m.get("not_judged"):  # cut short by the other section's trip, or the range's
+            why = [f"not judged: {m['not_judged']}"]
+        elif m.get("heater_fault"):
+            why = [f"heater fault: {w}" for w in m.get("warnings", [])] or ["heater fault"]
         if not complete:
             why.append("capture incomplete")
-        if not m.get("cold_start_ok") and not any("cold start" in w for w in why):
+        if (not m.get("cold_start_ok") and not m.get("not_judged") and not m.get("heater_fault")
+                and not any("cold start" in w for w in why)):
             why.append("not a cold start")
         row = {"capture_uuid": uuid, "section": sec, "version": version, "tube": tube,
                "at": at, "ambient_c": m.get("ambient_c"),

@@ -14,6 +14,13 @@ from ..logbook.store import Store
 from ..tester.driver import CaptureInterrupted, connect
 
 
+# trips that stop a capture for the bench's sake, not the tube's: what is
+# stored is a curve cut short, marked incomplete
+BENCH_TRIPS = {"host_silent": "the tester stopped: the host went silent",
+               "exception": "the tester stopped on a firmware error",
+               "max_on_time": "the tester stopped at its maximum on-time"}
+
+
 class UserInterrupt(KeyboardInterrupt):
     """Ctrl-C during a capture, after the partial capture was stored."""
 
@@ -39,6 +46,10 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
             except CaptureInterrupted as e:
                 raw = e.raw
                 raw.incomplete_reason = e.reason
+            cause = (raw.trip or {}).get("cause")
+            if cause in BENCH_TRIPS and raw.incomplete_reason is None:
+                # the curve was cut short for a reason that is not the tube
+                raw.incomplete_reason = BENCH_TRIPS[cause]
             if started_at:
                 raw.started_at = started_at
             store.save_capture(raw, tube_type=tube_type, notes=notes)
@@ -67,6 +78,7 @@ def capture_into_logbook(db_path, port_url: str | None, tube: str, section: str,
 
     from ..logbook.records import check_capture_target
     from ..tester.ports import find_tester
+    from ..tester.sockets import range_for
     if tube_type:
         tube_type = catalogue.load().get(tube_type).name  # unknown type: stop here
     if Path(db_path).exists():  # a known tube: its type and sections must fit
@@ -75,5 +87,17 @@ def capture_into_logbook(db_path, port_url: str | None, tube: str, section: str,
     else:
         kind = check_capture_target(None, tube, tube_type, section)
     port = port_url or find_tester()
+    params = dict(params or {})
+    if params.get("range") is None:  # from the type's rated current, else low
+        params["range"] = (range_for(catalogue.load().get(kind), _frontend()) if kind
+                           else "low")
     with Store(db_path) as store:
         return run_capture(port, store, tube, section, params, progress, tube_type=kind)
+
+
+def _frontend() -> dict:
+    import json
+
+    from .. import paths
+    with open(paths.require(paths.FRONTEND_PATH)) as f:
+        return json.load(f)

@@ -69,7 +69,7 @@ def clipping_warnings(raw: RawCapture) -> list[str]:
     msgs = []
     for name, (first, spent) in clipped_channels(raw).items():
         what = CHANNEL_NAMES.get(name, name)
-        spent_txt = f"{spent * 1000:.0f} ms" if spent < 1 else f"{spent:.2f} s"
+        spent_txt = f"{spent * 1000:.2g} ms" if spent < 1 else f"{spent:.2f} s"
         msg = (f"{what} reached the top of the converter's range for {spent_txt} "
                f"from {first:.3g} s: its readings there are lower bounds")
         if name == "light":

@@ -61,6 +61,19 @@ def wiring_for(t: TubeType, fitted: list[str] | None = None,
                       f"{'-'.join(str(p) for p in t.heater_pins)}")
 
 
+# a cold heater draws up to about 7.2 times its rated current at switch-on
+# (published range 2.7-7.2 x, audioXpress Sept. 2004)
+INRUSH_MAX_X = 7.2
+
+
+def range_for(t: TubeType, frontend: dict) -> str:
+    """The current range for this type: low unless its inrush can reach the
+    low range's over-current trip (95 % of full scale)."""
+    low = frontend["current_ranges"]["low"]
+    full_scale = frontend["adc"]["vref_v"] * low["amps_per_volt"]
+    return "high" if t.section_rating().amps * INRUSH_MAX_X > 0.95 * full_scale else "low"
+
+
 def check_for_tester(t: TubeType, sections: str, frontend: dict) -> Wiring:
     """The wiring a capture of these sections needs, on the tester whose
     front-end numbers are given (sockets fitted, supply limit)."""
