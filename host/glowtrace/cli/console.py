@@ -17,7 +17,7 @@ from rich.text import Text
 COLOR_CHOICES = ("auto", "always", "never")
 
 # the one palette: a status word's accent, everywhere the status is shown
-STATUS_STYLE = {"steady": "green", "new": "cyan", "watch": "yellow", "drifting": "magenta",
+STATUS_STYLE = {"steady": "green", "no baseline yet": "cyan", "watch": "yellow", "drifting": "magenta",
                 "at limit": "bold red", "heater fault": "bold red"}
 WARN = "yellow"
 GOOD = "green"

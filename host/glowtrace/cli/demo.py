@@ -43,7 +43,7 @@ def render_demo(res: dict, db, elapsed: float) -> None:
             flash = a.get("flash_index")
             rows.append([r["tube"], r["type"], r["customer"], sec,
                          f"{r[f'peak_a_{sec}']:.3f}", ui.fixed(r[f"final_a_{sec}"], 3),
-                         ui.fmt(a.get("inrush_ratio"), 3) + "x",
+                         ui.fmt(a.get("rated_inrush_ratio"), 3) + "x",
                          ui.fmt(a.get("warmup_90_s"), 3) + " s",
                          Text(ui.fmt(flash, 2), style=ui.BAD if flash and flash > 0.02
                               else ""),

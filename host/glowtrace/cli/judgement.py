@@ -64,6 +64,8 @@ def render_history(r: dict, noise_floor: dict) -> None:
         line.append(r["grade"], style="bold")
     ui.out.print(line)
     hanging(ui.out, r["reasons"])
+    if r["grade"]:
+        hanging(ui.out, [Text(f"Grade and status: {r['scope']}.", style="dim")], bullet="    ")
 
 
 def cmd_stock(args) -> int:
@@ -86,7 +88,8 @@ def cmd_stock(args) -> int:
         fit(ui.out, [Col("tube"), Col("type", priority=1), Col("owner", priority=3),
                      Col("grade"), Col("status"), Col("hot A at rated V", priority=2),
                      Col("vs rated"), Col("flash", priority=2),
-                     Col("imbalance", priority=4)], table)
+                     Col("imbalance", priority=4)], table,
+            caption=f"Grades: {rows[0]['scope']}." if rows else None)
     if args.json or not args.csv:
         ui.emit(args, rows, render)
     return 0

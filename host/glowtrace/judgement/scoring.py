@@ -30,8 +30,14 @@ LABELS = {
 }
 # measured figures of the latest scored capture, shown beside the rated ones
 MEASURED = ("hot_current_a", "inrush_ratio", "warmup_90_s", "settle_1pct_s")
+# a tube without enough good cold starts for a baseline: not "new", which in
+# this trade reads as new stock
+NO_BASELINE = "no baseline yet"
+# what a heater capture can and cannot say, shown with every grade
+HEATER_SCOPE = ("heater test only: emission, transconductance, shorts between elements, "
+                "gas and noise are not tested")
 # statuses, worst first: words of our own
-STATUS_ORDER = ("heater fault", "at limit", "drifting", "watch", "new", "steady")
+STATUS_ORDER = ("heater fault", "at limit", "drifting", "watch", "no baseline yet", "steady")
 SECONDS_PER_YEAR = 365.25 * 86400
 
 
@@ -195,7 +201,7 @@ def score_section(rows: list[dict], cfg: dict, section: str,
                                   f"{s.z_latest:+.1f} noise units from its baseline "
                                   "(a single capture: measure again)")
     if len(scored) < n_base and not baseline_uuids:
-        statuses.append("new")
+        statuses.append(NO_BASELINE)
         out["reasons"].append(f"section {section}: {len(scored)} good cold start(s) of the "
                               f"{n_base} that make its baseline")
     out["status"] = min(statuses or ["steady"], key=STATUS_ORDER.index)
@@ -285,12 +291,13 @@ def assess(tube: dict, sections: dict, cfg: dict, baselines: dict,
         result["reasons"] += sc["reasons"]
     statuses = [s["status"] for s in result["sections"].values()]
     if not any(s["scored"] for s in result["sections"].values()):
-        statuses.append("new")
+        statuses.append(NO_BASELINE)
     result["status"] = worst(statuses)
     result["drifting"] = any(s.get("drifting") for s in result["sections"].values())
     result["against_type"] = against_type(result, sections, tube_type, cfg, population)
     result["reasons"] += result["against_type"].pop("reasons")
     result["grade"] = grade(result, cfg)
+    result["scope"] = HEATER_SCOPE
     if not result["reasons"]:
         result["reasons"].append("no change beyond the measurement noise")
     return result
@@ -336,6 +343,22 @@ def against_type(result: dict, sections: dict, tube_type, cfg: dict,
                         ("rated_hot_current_a", "cold_resistance_20c_ohm")
                         if row[m] is not None}
             out["population"] = n
+    # series-string warm-up against the type's rated (controlled) warm-up time
+    out["series_warmup_deviation"] = {}
+    rated_w = tube_type.controlled_warmup_s if tube_type is not None else None
+    if rated_w:
+        w_tol = cfg["type"]["series_warmup_tolerance"]
+        for sec, row in latest.items():
+            if row and row["series_warmup_s"]:
+                dev = row["series_warmup_s"] / rated_w - 1
+                out["series_warmup_deviation"][sec] = dev
+                if abs(dev) > w_tol:
+                    out["reasons"].append(
+                        f"section {sec}: series-string warm-up {row['series_warmup_s']:.1f} s "
+                        f"is {100 * dev:+.0f} % from the type's rated {rated_w:g} s (tolerance "
+                        f"{100 * w_tol:g} %): in a series string it "
+                        + ("lags, and the others see more than their rated voltage"
+                           if dev > 0 else "runs ahead and sees more than its rated voltage"))
     a, b = latest.get("A"), latest.get("B")
     if a and b and a["hot_resistance_ohm"] and b["hot_resistance_ohm"]:
         ra, rb = a["hot_resistance_ohm"], b["hot_resistance_ohm"]
@@ -365,6 +388,10 @@ def grade(result: dict, cfg: dict) -> str | None:
         if "max_flash_index" in g and flash > g["max_flash_index"]:
             continue
         if "max_section_imbalance" in g and imb is not None and imb > g["max_section_imbalance"]:
+            continue
+        if "max_series_warmup_deviation" in g and at["series_warmup_deviation"] and max(
+                abs(d) for d in at["series_warmup_deviation"].values()) \
+                > g["max_series_warmup_deviation"]:
             continue
         if not g.get("allow_drifting", True) and result["drifting"]:
             continue

@@ -110,6 +110,7 @@ def write_report(store: Store, label: str, cfg: dict, path) -> dict:
         + f". Written {datetime.now(timezone.utc).date().isoformat()} by glowtrace.</p>",
         f"<p class='status'>Status: <b>{e(result['status'])}</b>"
         + (f" &nbsp; Grade: <b>{e(result['grade'])}</b>" if result["grade"] else "") + "</p>",
+        f"<p class='note'>This is a {e(result['scope'])}.</p>",
         "<ul>" + "".join(f"<li>{e(r)}</li>" for r in result["reasons"]) + "</ul>",
         "<h2>Captures</h2><table><tr><th>date (UTC)</th><th>section</th>"
         "<th>cold R at 20 C, ohm</th><th>hot current at rated V, A</th>"

@@ -8,7 +8,7 @@ from pathlib import Path
 STOCK_FIELDS = ["tube", "type", "owner", "status", "grade", "sections", "hot_current_a",
                 "rated_hot_current_a",
                 "rated_amps", "current_deviation", "cold_resistance_20c_ohm", "flash_index",
-                "section_imbalance", "drifting", "reasons"]
+                "section_imbalance", "drifting", "reasons", "scope"]
 
 
 def stock_rows(assessments: list[dict]) -> list[dict]:
@@ -29,7 +29,7 @@ def stock_rows(assessments: list[dict]) -> list[dict]:
             "current_deviation": at["current_deviation"],
             "cold_resistance_20c_ohm": per("cold_resistance_20c_ohm"),
             "flash_index": per("flash_index"), "section_imbalance": at["section_imbalance"],
-            "drifting": a["drifting"], "reasons": a["reasons"]})
+            "drifting": a["drifting"], "reasons": a["reasons"], "scope": a["scope"]})
     return rows
 
 
@@ -40,7 +40,7 @@ def write_stock_csv(rows: list[dict], path: str | Path) -> None:
         w.writerow(["tube", "type", "owner", "section", "status", "grade", "hot_current_a",
                     "rated_hot_current_a",
                     "rated_amps", "current_deviation", "cold_resistance_20c_ohm",
-                    "flash_index", "section_imbalance", "drifting", "reasons"])
+                    "flash_index", "section_imbalance", "drifting", "reasons", "scope"])
         for r in rows:
             for sec in r["sections"] or "-":
                 w.writerow([r["tube"], r["type"] or "", r["owner"] or "", sec, r["status"],
@@ -49,7 +49,7 @@ def write_stock_csv(rows: list[dict], path: str | Path) -> None:
                             _g(r["rated_amps"]), _g(r["current_deviation"].get(sec)),
                             _g(r["cold_resistance_20c_ohm"].get(sec)),
                             _g(r["flash_index"].get(sec)), _g(r["section_imbalance"]),
-                            int(r["drifting"]), " | ".join(r["reasons"])])
+                            int(r["drifting"]), " | ".join(r["reasons"]), r["scope"]])
 
 
 def _g(v) -> str:

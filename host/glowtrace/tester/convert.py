@@ -80,8 +80,9 @@ def clipping_warnings(raw: RawCapture) -> list[str]:
     return msgs
 
 
-KEY_FIGURES = ("cold_resistance_20c_ohm", "hot_current_a", "inrush_ratio", "warmup_90_s",
-               "settle_1pct_s", "flash_index", "light_overshoot", "cold_start_ok",
+KEY_FIGURES = ("cold_resistance_20c_ohm", "hot_current_a", "rated_hot_current_a",
+               "rated_inrush_ratio", "warmup_90_s", "settle_1pct_s", "flash_index",
+               "light_overshoot", "cold_start_ok", "heater_fault", "not_judged",
                "warnings")
 
 
