@@ -12,6 +12,9 @@ from .metrics import SETTLE_BAND, TAIL_S, first_crossing, last_entry, measure
 
 FLASH_TRY_RMS = 2.0      # fit the flash model when the even one misses by more
 FLASH_MIN_GAIN = 25.0    # chi-square gain for the two extra parameters to count
+# a share below this reads 0: it is within the noise of a good capture, and
+# within what the two tungsten tables' different laws leave in an even fit
+FLASH_MIN_SHARE = 0.01
 POOR_FIT_RMS = 3.0
 NORMALISE_LIMIT = 0.15   # heater voltage further than this from rated: not normalised
 
@@ -121,7 +124,7 @@ def analyze_curve(c: Curve, ambient_c: float, tube_type: TubeType | None = None,
         out["flash_index"] = 0.0
         if best.rms > FLASH_TRY_RMS:
             fl = thermal.fit(*args, flash=True, start=best.model)
-            if best.chi2 - fl.chi2 > FLASH_MIN_GAIN:
+            if best.chi2 - fl.chi2 > FLASH_MIN_GAIN and fl.model.f >= FLASH_MIN_SHARE:
                 best = fl
                 out["flash_index"] = fl.model.f
         if best.rms > POOR_FIT_RMS:
@@ -135,6 +138,11 @@ def analyze_curve(c: Curve, ambient_c: float, tube_type: TubeType | None = None,
         out["rated_peak_current_a"] = rated_v / out["cold_resistance_20c_ohm"]
     if m.t is not None:
         at_rated(out, model, wire, rated_v, rated_a, m.v_end, ambient_c, warnings)
+    if out.get("hot_cold_ratio") and out["hot_cold_ratio"] > 1:
+        # the wire's mean temperature when hot, from its resistance ratio, and
+        # the spread between the two tungsten tables as its uncertainty
+        out["hot_wire_temperature_k"] = float(wire.temperature(out["hot_cold_ratio"]))
+        out["hot_wire_temperature_u_k"] = wire.temperature_spread(out["hot_cold_ratio"])
     if c.light is not None:
         out["light_overshoot"] = light_overshoot(c)
     out["rated_volts"], out["rated_amps"] = rated_v, rated_a

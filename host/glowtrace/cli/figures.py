@@ -31,6 +31,8 @@ FIGURES = {
     "rated_settle_1pct_s": ("hot-current settling (1 %) at rated voltage", "s"),
     "rated_basis": ("rated-voltage figures from", ""),
     "series_warmup_s": ("series-string warm-up (to 80 %)", "s"),
+    "hot_wire_temperature_k": ("hot wire temperature (mean)", "K"),
+    "hot_wire_temperature_u_k": ("its uncertainty (tungsten tables)", "K"),
     "rated_volts": ("rated volts (section)", "V"),
     "rated_amps": ("rated amps (section)", "A"),
     "ambient_c": ("room temperature", "C"),
