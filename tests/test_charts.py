@@ -123,3 +123,37 @@ def _series_with_s(n: int, s: int) -> list[float]:
 def test_robust_centre_scale():
     med, sig = charts.robust_centre_scale([1.0, 2.0, 3.0, 4.0, 100.0])
     assert med == 3.0 and sig == pytest.approx(1.4826)
+
+
+def test_q_statistics_by_hand():
+    """Quesenberry (1991), mu unknown and sigma known: Q_r =
+    sqrt((r-1)/r) (x_r - mean of the r-1 before) / sigma."""
+    q = charts.q_statistics([10.0, 12.0], [14.0, 9.0], 2.0)
+    assert q[0] == pytest.approx(math.sqrt(2 / 3) * (14 - 11) / 2)
+    assert q[1] == pytest.approx(math.sqrt(3 / 4) * (9 - 12) / 2)
+
+
+def test_q_statistics_are_independent_standard_normals():
+    """However short the reference, Q values of one normal process are iid
+    N(0, 1): mean 0, variance 1, no correlation between neighbours; the plain
+    z against a three-point baseline mean has variance 1 + 1/3 and
+    correlation 1/4 (the baseline's own error repeats in every z)."""
+    rng = np.random.default_rng(7)
+    x = rng.normal(5.0, 2.0, size=(40000, 12))
+    q = np.array([charts.q_statistics(row[:3], row[3:], 2.0) for row in x[:8000]])
+    assert abs(q.mean()) < 0.02 and q.var() == pytest.approx(1.0, abs=0.03)
+    assert abs(np.corrcoef(q[:, 0], q[:, 1])[0, 1]) < 0.03
+    z = (x[:, 3:] - x[:, :3].mean(axis=1, keepdims=True)) / 2.0
+    assert z.var() == pytest.approx(4 / 3, abs=0.03)
+    assert np.corrcoef(z[:, 0], z[:, 1])[0, 1] == pytest.approx(0.25, abs=0.02)
+
+
+def test_pooled_sigma_is_von_neumanns():
+    sigma, df = charts.pooled_sigma([[1.0, 3.0], [10.0, 10.0, 13.0], [5.0]])
+    assert df == 3 and sigma == pytest.approx(math.sqrt((4 + 0 + 9) / 6))
+    rng = np.random.default_rng(3)
+    # forty tubes of three captures, sigma 0.01, each tube on its own drift
+    series = [list(0.01 * rng.normal(size=3) + 0.002 * np.arange(3) + rng.normal())
+              for _ in range(40)]
+    sigma, df = charts.pooled_sigma(series)
+    assert df == 80 and sigma == pytest.approx(0.01, rel=0.25)

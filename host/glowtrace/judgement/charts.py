@@ -136,3 +136,35 @@ def robust_centre_scale(x) -> tuple[float, float]:
     """Median and the MAD scaled to a normal sigma (x 1.4826)."""
     med = median(x)
     return med, 1.4826 * median([abs(v - med) for v in x])
+
+
+def q_statistics(reference: list[float], later: list[float], sigma: float) -> list[float]:
+    """Quesenberry's Q statistics for a known sigma and an unknown mean (J.
+    Quality Technology 23 (1991), the case "mu unknown, sigma known"): each
+    later value against the mean of all values before it (the reference,
+    then the later ones in turn),
+        Q_r = sqrt((r - 1) / r) * (x_r - mean(x_1..x_{r-1})) / sigma.
+    For values from one normal process they are independent N(0, 1), however
+    short the reference: a self-starting chart."""
+    ref = [float(v) for v in reference]
+    total = sum(ref)
+    out = []
+    for v in later:
+        n = len(ref)
+        out.append(math.sqrt(n / (n + 1.0)) * (float(v) - total / n) / sigma)
+        ref.append(float(v))
+        total += float(v)
+    return out
+
+
+def pooled_sigma(series: list[list[float]]) -> tuple[float, int]:
+    """A noise sigma pooled over several short series (the tubes of a type):
+    half the mean squared successive difference (von Neumann's estimator),
+    which a slow drift within a series barely moves. Returns (sigma, degrees
+    of freedom); (0, 0) without two values in any series."""
+    ss, df = 0.0, 0
+    for s in series:
+        for a, b in zip(s, s[1:]):
+            ss += (float(b) - float(a)) ** 2
+            df += 1
+    return (math.sqrt(ss / (2.0 * df)), df) if df else (0.0, 0)

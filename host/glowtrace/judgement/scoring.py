@@ -6,6 +6,7 @@ newest analysis version of each), so a whole fleet is scored without parsing
 a single analysis document. Settings: config.py (data/scoring.toml)."""
 
 import json
+import math
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta, timezone
 
@@ -65,7 +66,8 @@ class MetricScore:
     trend_per_year: float | None = None  # relative (flash: absolute) change per year
     trend_p: float | None = None
     trend_significant: bool = False
-    limit: float | None = None
+    limit: float | None = None          # the limit in the bad direction
+    limits: list = field(default_factory=list)  # every limit line (both: low, high)
     at_limit: bool = False
     crossing: str | None = None          # ISO date the trend reaches the limit
     drifting: bool = False
@@ -79,10 +81,18 @@ def _bad(direction: str, sign: float) -> bool:
 
 def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
                  base_index: list[int] | None, cfg: dict, section: str,
-                 years: list[float] | None = None) -> MetricScore:
+                 years: list[float] | None = None, pooled: float | None = None) -> MetricScore:
     """One metric of one tube section; xs are the scored captures' values in
     time order, ats their times (years: the same in years from the first);
-    base_index the user's baseline captures (positions in xs)."""
+    base_index the user's baseline captures (positions in xs); pooled the
+    noise of this metric pooled over the type's tubes (relative, or absolute
+    for the flash index), None when the logbook holds too few.
+
+    Relative metrics are judged on ln x, so their noise is a share. The noise
+    sigma is never taken from the baseline's own spread (three points say
+    little about it): it is the larger of the noise floor and the pooled
+    noise. Each capture after the baseline is a Q statistic against the mean
+    of all before it (charts.q_statistics); the CUSUM runs on those."""
     ch = cfg["charts"]
     lim = cfg["limits"][metric]
     direction = lim["direction"]
@@ -90,65 +100,72 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
     label, unit = LABELS[metric]
     x = [float(v) for v in xs]
     s = MetricScore(metric, len(x))
-    if not x:
+    if not x or (not absolute and min(x) <= 0):
         return s
     s.latest = x[-1]
     idx = base_index if base_index else list(range(min(n_base, len(x))))
     if len(idx) < n_base and not base_index:
         return s
-    centre, spread = charts.robust_centre_scale([x[k] for k in idx])
-    floor = cfg["noise_floor"][metric] * (1.0 if absolute else abs(centre))
-    scale = max(spread, floor)
-    s.baseline, s.scale = centre, scale
-    z = [(v - centre) / scale for v in x]
-    s.z_latest = z[-1]
-    s.change = (x[-1] - centre) if absolute else (x[-1] - centre) / centre
-    after = z[max(idx) + 1:]
+    y = x if absolute else [math.log(v) for v in x]
+    base = [y[k] for k in idx]
+    centre_y = sum(base) / len(base)
+    sigma = max(cfg["noise_floor"][metric], pooled or 0.0)
+    centre = centre_y if absolute else math.exp(centre_y)
+    s.baseline, s.scale = centre, sigma * (1.0 if absolute else centre)
+    s.z_latest = (y[-1] - centre_y) / (sigma * math.sqrt(1.0 + 1.0 / len(base)))
+    s.change = (x[-1] - centre) if absolute else (x[-1] / centre - 1.0)
+    q = charts.q_statistics(base, y[max(idx) + 1:], sigma)
     where = f"section {section}: {label}"
-    if len(after):
-        e = charts.ewma(z[max(idx):], 0.0, 1.0, ch["ewma_lambda"], ch["ewma_limit"])
+    if q:
+        e = charts.ewma(q, 0.0, 1.0, ch["ewma_lambda"], ch["ewma_limit"])
         last = float(e.values[-1])
         s.ewma_signal = (last > e.upper and _bad(direction, 1)) or (
             last < e.lower and _bad(direction, -1))
-        c = charts.cusum(after, 0.0, ch["cusum_k"], ch["cusum_h"])
+        c = charts.cusum(q, 0.0, ch["cusum_k"], ch["cusum_h"])
         s.cusum_signal = (c.upper[-1] > c.h and _bad(direction, 1)) or (
             c.lower[-1] > c.h and _bad(direction, -1))
     t = years if years is not None else list(_years(ats))
+    first = min(idx)
+    ty, yy = t[first:], y[first:]
     slope = icpt = None
-    if len(x) >= ch["trend_min"] and t[-1] > t[0]:
-        slope, icpt = charts.theil_sen(t, xs)
-        mk = charts.mann_kendall(xs, t)
-        s.trend_per_year = slope if absolute else slope / centre
+    if len(yy) >= ch["trend_min"] and ty[-1] > ty[0]:
+        slope, icpt = charts.theil_sen(ty, yy)
+        mk = charts.mann_kendall(yy, ty)
+        s.trend_per_year = slope  # ln units: a share a year (flash: absolute)
         s.trend_p = mk.p
-        moved = abs(slope * t[-1]) > 2 * scale
+        moved = abs(slope * (ty[-1] - ty[0])) > 2 * sigma
         s.trend_significant = mk.p < ch["trend_p"] and _bad(direction, slope) and moved
-    if absolute:
-        s.limit = lim["absolute"]
-        s.at_limit = s.latest >= s.limit
+    if absolute:  # the flash index: an amount above its baseline
+        s.limits = [centre + lim["absolute"]]
+        s.at_limit = s.latest >= s.limits[0]
     else:
-        sign = 1 if direction == "up" else -1
-        s.limit = centre * (1 + sign * lim["change"])
-        s.at_limit = (s.latest >= s.limit) if sign > 0 else (s.latest <= s.limit)
-        if direction == "both":
-            s.at_limit = abs(s.latest / centre - 1) >= lim["change"]
+        ch_ = lim["change"]
+        s.limits = {"up": [centre * (1 + ch_)], "down": [centre * (1 - ch_)],
+                    "both": [centre * (1 - ch_), centre * (1 + ch_)]}[direction]
+        s.at_limit = abs(s.change) >= ch_ and _bad(direction, s.change)
+    s.limit = s.limits[-1] if direction != "down" else s.limits[0]
     def fmt(v):
         return f"{v:+.3f}" if absolute else f"{100 * v:+.1f} %"
     if s.trend_significant and not s.at_limit and slope:
-        years = (s.limit - (icpt + slope * t[-1])) / slope
-        if 0 < years < 50:
-            when = _parse_at(ats[-1]) + timedelta(days=365.25 * years)
+        target = s.limit if absolute else math.log(s.limit)
+        if direction == "both":
+            target = math.log(s.limits[1] if slope > 0 else s.limits[0])
+        years_left = (target - (icpt + slope * ty[-1])) / slope
+        if 0 < years_left < 50:
+            when = _parse_at(ats[-1]) + timedelta(days=365.25 * years_left)
             s.crossing = when.date().isoformat()
     s.drifting = s.ewma_signal or s.cusum_signal or s.trend_significant
     if s.at_limit:
+        shown = " / ".join(f"{v:.4g}" for v in s.limits)
         s.reasons.append(f"{where} is {fmt(s.change)} from its baseline, at or past its "
-                         f"limit ({f'{s.limit:.4g} {unit}'.strip()})")
+                         f"limit ({f'{shown} {unit}'.strip()})")
     elif s.drifting:
         why = []
         if s.trend_significant:
             p = "p < 0.001" if s.trend_p < 0.001 else f"p = {s.trend_p:.3f}"
             why.append(f"a steady trend of {fmt(s.trend_per_year)} a year (Mann-Kendall {p})")
         if s.cusum_signal or s.ewma_signal:
-            why.append("a lasting shift beyond the noise (CUSUM/EWMA)")
+            why.append("a lasting shift beyond the noise (CUSUM/EWMA of Q statistics)")
         msg = f"{where} has moved {fmt(s.change)} from its baseline: " + " and ".join(why)
         if s.crossing:
             msg += f"; at this rate it reaches its limit around {s.crossing}"
@@ -164,7 +181,8 @@ def _excluded_fault(row: dict) -> bool:
 
 
 def score_section(rows: list[dict], cfg: dict, section: str,
-                  baseline_uuids: list[str] | None = None) -> dict:
+                  baseline_uuids: list[str] | None = None, noise: dict | None = None) -> dict:
+    """noise: the type's pooled noise per metric (type_noise), or None."""
     scored = [r for r in rows if r["scored"]]
     n_base = int(cfg["baseline"]["count"])
     out = {"captures": len(rows), "scored": len(scored), "metrics": {}, "reasons": [],
@@ -187,7 +205,8 @@ def score_section(rows: list[dict], cfg: dict, section: str,
         ats, xs, uuids = [p[0] for p in pts], [p[1] for p in pts], [p[2] for p in pts]
         years = [p[3] for p in pts]
         base_idx = [uuids.index(u) for u in (baseline_uuids or []) if u in uuids] or None
-        s = score_metric(m, ats, xs, n_base, base_idx, cfg, section, years)
+        s = score_metric(m, ats, xs, n_base, base_idx, cfg, section, years,
+                         (noise or {}).get(m))
         out["metrics"][m] = {k: v for k, v in s.__dict__.items() if k != "reasons"}
         # metrics at their limit lead the reasons
         out["reasons"] = (s.reasons + out["reasons"]) if s.at_limit else (out["reasons"] + s.reasons)
@@ -233,6 +252,35 @@ def load_rows(store: Store, tube: str | None = None) -> dict:
     return out
 
 
+def load_type_rows(store: Store, type_name: str) -> list[list[dict]]:
+    """Every tube section's rows of one type (newest analysis of each)."""
+    sql = _ROWS_SQL.format(where="AND s.tube IN (SELECT label FROM tubes WHERE type = ?)")
+    cur = store.db.execute(sql, [type_name])
+    cols = [d[0] for d in cur.description]
+    out: dict = {}
+    for r in cur.fetchall():
+        row = dict(zip(cols, r))
+        out.setdefault((row["tube"], row["section"]), []).append(row)
+    return list(out.values())
+
+
+def type_noise(section_series: list[list[dict]], cfg: dict) -> dict:
+    """Per metric, the noise pooled over the scored captures of every tube
+    section of a type (charts.pooled_sigma on ln x; flash index absolute), or
+    None below the configured degrees of freedom."""
+    out = {}
+    for m in METRICS:
+        series = []
+        for rows in section_series:
+            vals = [r[m] for r in rows if r["scored"] and r[m] is not None]
+            if m != "flash_index":
+                vals = [math.log(v) for v in vals if v > 0]
+            series.append(vals)
+        sigma, df = charts.pooled_sigma(series)
+        out[m] = sigma if df >= cfg["charts"]["pool_min_df"] else None
+    return out
+
+
 def load_baselines(store: Store, tube: str | None = None) -> dict:
     sql = "SELECT tube, section, captures FROM baselines" + (" WHERE tube = ?" if tube else "")
     return {(t, s): json.loads(c) for t, s, c in
@@ -267,7 +315,7 @@ def percentile(value: float, population: list[float]) -> float:
 
 # tubes --------------------------------------------------------------------
 def assess(tube: dict, sections: dict, cfg: dict, baselines: dict,
-           population: dict | None) -> dict:
+           population: dict | None, noise: dict | None = None) -> dict:
     """Assessment of one tube from its section rows."""
     tube_type = None
     if tube.get("type"):
@@ -284,7 +332,7 @@ def assess(tube: dict, sections: dict, cfg: dict, baselines: dict,
         rows = sections.get(sec, [])
         if not rows and tube_type is None:
             continue
-        sc = score_section(rows, cfg, sec, baselines.get((tube["label"], sec)))
+        sc = score_section(rows, cfg, sec, baselines.get((tube["label"], sec)), noise)
         result["sections"][sec] = sc
     # the worst section's reasons first
     for sc in sorted(result["sections"].values(), key=lambda x: STATUS_ORDER.index(x["status"])):
@@ -406,7 +454,8 @@ def assess_tube(store: Store, label: str, cfg: dict, rows: dict | None = None) -
     if rows is None:
         rows = load_rows(store, label).get(label, {})
     pop = type_population(store, tube["type"]) if tube["type"] else None
-    return assess(tube, rows, cfg, load_baselines(store, label), pop)
+    noise = type_noise(load_type_rows(store, tube["type"]), cfg) if tube["type"] else None
+    return assess(tube, rows, cfg, load_baselines(store, label), pop, noise)
 
 
 def history(store: Store, label: str, cfg: dict) -> dict:
@@ -449,5 +498,8 @@ def assess_fleet(store: Store, cfg: dict, type_name: str | None = None,
     pops = {tname: _population(r for lbl in labels for sec_rows in rows.get(lbl, {}).values()
                                for r in sec_rows if r["scored"])
             for tname, labels in by_type.items()}
-    return [assess(t, rows.get(t["label"], {}), cfg, baselines, pops.get(t["type"]))
+    noises = {tname: type_noise([r for lbl in labels for r in rows.get(lbl, {}).values()], cfg)
+              for tname, labels in by_type.items()}
+    return [assess(t, rows.get(t["label"], {}), cfg, baselines, pops.get(t["type"]),
+                   noises.get(t["type"]))
             for t in tubes]

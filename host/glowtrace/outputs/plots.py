@@ -81,9 +81,9 @@ def trend_charts(result: dict, noise_floor: dict, width: int = 60, height: int =
             for y in (centre - half, centre + half):
                 plt.plot([0, x_end], [y, y], marker=".", color=colour)
                 ys.append(y)
-            if s.get("limit") is not None:
-                plt.plot([0, x_end], [s["limit"]] * 2, marker="x", color=colour)
-                ys.append(s["limit"])
+            for lim in s.get("limits") or []:  # where the judgement puts them
+                plt.plot([0, x_end], [lim] * 2, marker="x", color=colour)
+                ys.append(lim)
         for sec, pts in sorted(series.items()):
             colour, mark = SECTION_MARKS.get(sec, ("green", sec[:1]))
             plt.scatter([d for d, _ in pts], [y for _, y in pts], marker=mark, color=colour)

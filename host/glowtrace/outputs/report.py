@@ -82,7 +82,8 @@ def _trend_figure(result: dict, caps: list[dict]):
             if s.get("baseline") is not None:
                 b, sc = s["baseline"], s["scale"]
                 ax.axhspan(b - 2 * sc, b + 2 * sc, color=colour, alpha=0.12)
-                ax.axhline(s["limit"], color=colour, ls="--", lw=0.8)
+                for lim in s.get("limits") or []:  # where the judgement puts them
+                    ax.axhline(lim, color=colour, ls="--", lw=0.8)
         label, unit = LABELS[m]
         ax.set_ylabel(f"{label}\n{unit}".strip(), fontsize=8)
         ax.grid(True, alpha=0.25)
