@@ -252,16 +252,18 @@ def load_rows(store: Store, tube: str | None = None) -> dict:
     return out
 
 
-def load_type_rows(store: Store, type_name: str) -> list[list[dict]]:
-    """Every tube section's rows of one type (newest analysis of each)."""
-    sql = _ROWS_SQL.format(where="AND s.tube IN (SELECT label FROM tubes WHERE type = ?)")
-    cur = store.db.execute(sql, [type_name])
-    cols = [d[0] for d in cur.description]
-    out: dict = {}
+def type_noise_of(store: Store, type_name: str, cfg: dict) -> dict:
+    """type_noise for one type, read lean: the scored rows' metric columns
+    as tuples, in time order per tube section (a history needs only this)."""
+    cols = ", ".join(METRICS)
+    cur = store.db.execute(
+        f"SELECT s.tube, s.section, {cols} FROM section_metrics s WHERE s.scored = 1 "
+        "AND s.version = ? AND s.tube IN (SELECT label FROM tubes WHERE type = ?) "
+        "ORDER BY s.tube, s.section, s.at", [ANALYSIS_VERSION, type_name])
+    series: dict = {}
     for r in cur.fetchall():
-        row = dict(zip(cols, r))
-        out.setdefault((row["tube"], row["section"]), []).append(row)
-    return list(out.values())
+        series.setdefault((r[0], r[1]), []).append(dict(zip(METRICS, r[2:]), scored=1))
+    return type_noise(list(series.values()), cfg)
 
 
 def type_noise(section_series: list[list[dict]], cfg: dict) -> dict:
@@ -454,7 +456,7 @@ def assess_tube(store: Store, label: str, cfg: dict, rows: dict | None = None) -
     if rows is None:
         rows = load_rows(store, label).get(label, {})
     pop = type_population(store, tube["type"]) if tube["type"] else None
-    noise = type_noise(load_type_rows(store, tube["type"]), cfg) if tube["type"] else None
+    noise = type_noise_of(store, tube["type"], cfg) if tube["type"] else None
     return assess(tube, rows, cfg, load_baselines(store, label), pop, noise)
 
 
