@@ -7,9 +7,8 @@ import json
 
 import pytest
 
-from glowtrace import catalogue, config
+from glowtrace import catalogue, config, paths
 from glowtrace.cli import main
-from glowtrace.procedures.capture import _frontend
 from glowtrace.tester.sockets import range_for
 
 
@@ -45,7 +44,7 @@ def test_open_section_of_a_dual_heater(tmp_path, capsys):
 
 
 def test_the_range_comes_from_the_type():
-    fe = _frontend()
+    fe = json.loads(paths.FRONTEND_PATH.read_text())  # the reference tester's ranges
     cat = catalogue.load()
     assert range_for(cat.get("12AX7"), fe) == "low"
     assert range_for(cat.get("EL34"), fe) == "high"

@@ -9,7 +9,7 @@ from .. import catalogue
 from ..analysis.runner import analyze_stored
 from ..tester.raw import RawCapture
 from ..errors import GlowtraceError
-from ..tester.sockets import check_for_tester
+from ..tester.sockets import check_for_tester, range_for
 from ..logbook.store import Store
 from ..tester.driver import CaptureInterrupted, connect
 
@@ -37,12 +37,17 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
     its invented earlier visits)."""
     with connect(port_url) as tester:
         try:
+            params = dict(params or {})
             if tube_type:
+                kind = catalogue.load().get(tube_type)
                 # refuse before switching on if this tester cannot wire the type
-                check_for_tester(catalogue.load().get(tube_type), section,
-                                 tester.hello["frontend"])
+                check_for_tester(kind, section, tester.hello["frontend"])
+                if params.get("range") is None:  # from the type, on this tester's ranges
+                    params["range"] = range_for(kind, tester.hello["frontend"])
+            if params.get("range") is None:
+                params["range"] = "low"
             try:
-                raw = tester.capture(tube, section, params or {}, progress)
+                raw = tester.capture(tube, section, params, progress)
             except CaptureInterrupted as e:
                 raw = e.raw
                 raw.incomplete_reason = e.reason
@@ -78,7 +83,6 @@ def capture_into_logbook(db_path, port_url: str | None, tube: str, section: str,
 
     from ..logbook.records import check_capture_target
     from ..tester.ports import find_tester
-    from ..tester.sockets import range_for
     if tube_type:
         tube_type = catalogue.load().get(tube_type).name  # unknown type: stop here
     if Path(db_path).exists():  # a known tube: its type and sections must fit
@@ -87,17 +91,5 @@ def capture_into_logbook(db_path, port_url: str | None, tube: str, section: str,
     else:
         kind = check_capture_target(None, tube, tube_type, section)
     port = port_url or find_tester()
-    params = dict(params or {})
-    if params.get("range") is None:  # from the type's rated current, else low
-        params["range"] = (range_for(catalogue.load().get(kind), _frontend()) if kind
-                           else "low")
     with Store(db_path) as store:
         return run_capture(port, store, tube, section, params, progress, tube_type=kind)
-
-
-def _frontend() -> dict:
-    import json
-
-    from .. import paths
-    with open(paths.require(paths.FRONTEND_PATH)) as f:
-        return json.load(f)

@@ -66,10 +66,12 @@ def ratio(t_k):
     return resistivity(t_k) / resistivity(T20_K)
 
 
-@lru_cache(maxsize=1)
-def _inverse_grid() -> tuple[np.ndarray, np.ndarray]:
+@lru_cache(maxsize=2)
+def _inverse_grid(table_ratio=None) -> tuple[np.ndarray, np.ndarray]:
+    """(ratios, temperatures) on a 1 K grid, for inverting a ratio law
+    (default: this table's)."""
     grid = np.linspace(150.0, 3600.0, 3451)
-    return ratio(grid), grid
+    return (table_ratio or ratio)(grid), grid
 
 
 def temperature(r):
@@ -98,16 +100,10 @@ def ratio_wm(t_k):
     return resistivity_wm(t_k) / resistivity_wm(T20_K)
 
 
-@lru_cache(maxsize=1)
-def _inverse_grid_wm() -> tuple[np.ndarray, np.ndarray]:
-    grid = np.linspace(150.0, 3600.0, 3451)
-    return ratio_wm(grid), grid
-
-
 def temperature_spread(r) -> float:
     """|T from the table - T from White & Minges| for a pure-tungsten
     resistance ratio r against 20 C: the systematic uncertainty, K."""
-    rs, grid = _inverse_grid_wm()
+    rs, grid = _inverse_grid(ratio_wm)
     return float(abs(temperature(r) - np.interp(r, rs, grid)))
 
 
