@@ -82,9 +82,9 @@ def test_capture_summary_includes_analysis(stored):
 def test_reanalyze_only_what_lacks_the_current_version(stored, capsys):
     db, raw = stored
     with Store(db) as s:
-        assert reanalyze(s) == []
+        assert reanalyze(s) == ([], {})
         s.db.execute("DELETE FROM analyses")
-        assert reanalyze(s) == [raw.uuid]
+        assert reanalyze(s) == ([raw.uuid], {})
         assert s.analysis(raw.uuid)["sections"]["B"]["flash_index"] > 0.05
     assert main(["reanalyze", "--force", "--db", str(db), "--json"]) == 0
     assert json.loads(capsys.readouterr().out)["analysed"] == 1

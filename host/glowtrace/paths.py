@@ -66,3 +66,9 @@ def user_config_file(env_var: str, name: str) -> Path:
         return Path(env)
     base = os.environ.get("XDG_CONFIG_HOME") or Path.home() / ".config"
     return Path(base) / "glowtrace" / name
+
+
+def unsaved_dir() -> Path:
+    """Where a capture the logbook could not take is kept whole until
+    `glowtrace recover` stores it."""
+    return data_dir() / "unsaved"

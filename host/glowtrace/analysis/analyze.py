@@ -8,6 +8,7 @@ from ..catalogue import TubeType
 from .physics.tungsten import ZERO_C_K, HeaterWire
 from . import ANALYSIS_VERSION, thermal
 from .curve import Curve, from_capture
+from .instrument import judge_instrument
 from .metrics import SETTLE_BAND, TAIL_S, first_crossing, last_entry, measure
 
 FLASH_TRY_RMS = 2.0      # fit the flash model when the even one misses by more
@@ -174,10 +175,10 @@ def judge_trip(raw, sections: dict) -> None:
     section that tripped is a heater fault, and a section cut short with it is
     not judged (no figures, no warnings of its own), never called shorted.
     An over-current trip on the low range is the range's, not the tube's."""
-    cause = (raw.trip or {}).get("cause")
+    cause = raw.trip_cause
     if cause not in HEATER_TRIPS or not sections:
         return
-    at_s = (raw.trip.get("at_us") or 0) / 1e6
+    at_s = ((raw.trip or {}).get("at_us") or (raw.end or {}).get("off_us") or 0) / 1e6
     if cause == "open_heater":
         faulty = [s for s, m in sections.items()
                   if any("open heater" in w for w in m.get("warnings", []))]
@@ -232,6 +233,7 @@ def analyze_capture(raw, tube_type: TubeType | None = None,
     out = {"analysis_version": ANALYSIS_VERSION, "sections": sections,
            "section_imbalance": None}
     judge_trip(raw, sections)
+    judge_instrument(raw, curves, sections)  # after the trip: a dead channel trips too
     if raw.ambient_c is None:
         out["warnings"] = ["no room temperature recorded: 20 C assumed"]
     a, b = sections.get("A", {}), sections.get("B", {})

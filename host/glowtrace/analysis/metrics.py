@@ -23,6 +23,10 @@ SAG_LIMIT = 0.03       # supply sag during inrush worth a warning
 RATED_V_LIMIT = 0.10   # heater voltage this far from rated is worth a warning
 COLD_RATIO_MIN = 3.0   # a cold tungsten heater's hot/cold ratio is well above this
 HISTORY_WARM = 1.08    # cold R this much above the tube's earlier cold starts
+DROPOUT_REL = 0.2      # a set this far below its neighbours' median is a dropout...
+DROPOUT_NOISE = 6.0    # ... and this many noise units below it
+DROPOUT_WINDOW = 9     # the neighbours: this many sets, centred
+DROPOUT_AFTER_S = 0.005  # the switching edge is not a dropout
 
 
 @dataclass
@@ -86,6 +90,23 @@ def settling_181(t: np.ndarray, i_s: np.ndarray, peak: float, i_hot: float) -> f
     if t50 is None or t_in is None or t_in > t[-1] - TAIL_S:
         return None
     return max(t_in - t50, 0.0)
+
+
+def dropouts(t: np.ndarray, i: np.ndarray, noise: float) -> np.ndarray:
+    """Start times of the sets where the current falls far below its
+    neighbours and comes back: a heater's current changes smoothly (its
+    temperature cannot jump), so such a step is a contact opening for a
+    moment, in the socket or the leads."""
+    half = DROPOUT_WINDOW // 2
+    if len(i) < DROPOUT_WINDOW:
+        return np.zeros(0)
+    win = np.lib.stride_tricks.sliding_window_view(np.pad(i, half, mode="edge"),
+                                                   DROPOUT_WINDOW)
+    med = np.median(win, axis=1)
+    low = ((med - i > DROPOUT_REL * np.abs(med)) & (med - i > DROPOUT_NOISE * noise)
+           & (t > DROPOUT_AFTER_S))
+    starts = low & ~np.concatenate([[False], low[:-1]])
+    return t[starts]
 
 
 def measure(c: Curve, ambient_c: float, wire: HeaterWire, rated_v: float | None = None,
@@ -178,6 +199,11 @@ def measure(c: Curve, ambient_c: float, wire: HeaterWire, rated_v: float | None 
         vals["settle_1pct_s"] = float(t[k + 1])
     if noise > 0.5 * band:
         w.append(f"current noise ({noise:.2g} A rms) is large against the 1 % band")
+    drops = dropouts(t, i, noise)
+    if len(drops):
+        w.append(f"intermittent contact: the current dropped out {len(drops)} time(s), first "
+                 f"at {drops[0]:.3g} s, which no heater does: reseat the tube (clean its "
+                 "pins and the socket) and capture again")
     vals["settling_181_s"] = settling_181(t, i_s, peak, i_hot)
 
     # supply and rating checks

@@ -52,12 +52,33 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _interrupt(signum, frame):
+    if signum == signal.SIGHUP:
+        _detach_from_terminal()
+    raise KeyboardInterrupt
+
+
+def _detach_from_terminal() -> None:
+    """After a hang-up the terminal is gone and writing to it fails (EIO):
+    send what is still to be said to the null device, so storing the
+    partial capture is not stopped by a message."""
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    for fd in _on_terminal:
+        os.dup2(devnull, fd)
+    os.close(devnull)
+
+
+_on_terminal: list = []  # stdout and stderr when they were a terminal at start
+
+
 def main(argv=None) -> int:
     args = build_parser().parse_args(argv)
     console.setup(args.color)
-    # a polite kill (SIGTERM) stops a capture the way Ctrl-C does: heater
-    # off, the partial capture stored
-    signal.signal(signal.SIGTERM, lambda *a: (_ for _ in ()).throw(KeyboardInterrupt()))
+    # a polite kill (SIGTERM) and a closed terminal (SIGHUP) stop a capture
+    # the way Ctrl-C does: heater off, the partial capture stored
+    _on_terminal[:] = [fd for fd in (1, 2) if os.isatty(fd)]
+    for sig in (signal.SIGTERM, signal.SIGHUP):
+        signal.signal(sig, _interrupt)
     try:
         return args.func(args)
     except GlowtraceError as e:

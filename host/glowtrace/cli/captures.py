@@ -1,4 +1,4 @@
-"""Commands on stored captures: `list`, `show` and `reanalyze`."""
+"""Commands on stored captures: `list`, `show`, `reanalyze` and `recover`."""
 
 from pathlib import Path
 
@@ -8,7 +8,7 @@ from rich.text import Text
 from . import console as ui
 from .common import db_path
 from .figures import capture_summary
-from .tables import Col, fit
+from .tables import Col, fit, hanging
 
 
 def cmd_list(args) -> int:
@@ -71,19 +71,47 @@ def cmd_reanalyze(args) -> int:
     with Store(db_path(args), create=False) as store:
         if args.uuid:
             done = [store.find_uuid(u) for u in args.uuid]
+            failed = {}
             for u in done:
-                analyze_stored(store, u)
+                reason = analyze_stored(store, u).get("not_analysed")
+                if reason:
+                    failed[u] = reason
         else:
             bar = Progress(TextColumn("analysing"), BarColumn(),
                            TextColumn("{task.completed}/{task.total}"),
                            console=ui.err, transient=True, disable=not ui.err.is_terminal)
             with bar:
                 task = bar.add_task("", total=None)
-                done = reanalyze(store, args.force,
-                                 lambda n, total: bar.update(task, completed=n, total=total))
-    res = {"analysis_version": ANALYSIS_VERSION, "analysed": len(done), "captures": done}
-    ui.emit(args, res, lambda r: ui.out.print(
-        f"Analysed {r['analysed']} capture(s) with analysis version {r['analysis_version']}."))
+                done, failed = reanalyze(
+                    store, args.force,
+                    lambda n, total: bar.update(task, completed=n, total=total))
+    res = {"analysis_version": ANALYSIS_VERSION, "analysed": len(done), "captures": done,
+           "not_analysed": failed}
+
+    def render(r):
+        ui.out.print(f"Analysed {r['analysed']} capture(s) with analysis version "
+                     f"{r['analysis_version']}.", markup=False)
+        if failed:  # the rest went on past them; each keeps its reason
+            ui.warn(f"{len(failed)} capture(s) could not be analysed (stored with the "
+                    "reason, left out of scoring):")
+            hanging(ui.err, [f"{u}: {why}" for u, why in failed.items()])
+    ui.emit(args, res, render)
+    return 0
+
+
+def cmd_recover(args) -> int:
+    from ..procedures.capture import recover_into_logbook
+    done = recover_into_logbook(
+        db_path(args), args.file, args.busy_wait_s,
+        lambda waited: ui.err.print("The logbook is busy: waiting...", markup=False)
+        if waited < 1 else None)
+
+    def render(rows):
+        for r in rows:
+            state = "stored" if r["stored"] else "already in the logbook"
+            ui.out.print(f"{r['file']}: capture {r['capture']} of {r['tube']} {state}; "
+                         "file removed.", markup=False, highlight=False)
+    ui.emit(args, done, render)
     return 0
 
 
@@ -103,3 +131,13 @@ def register(sub, common) -> None:
                                            "without the current analysis)")
     s.add_argument("--force", action="store_true", help="all captures, even if current")
     s.set_defaults(func=cmd_reanalyze)
+
+    s = sub.add_parser("recover", parents=[common],
+                       help="store captures the logbook could not take when they were made",
+                       description="Store captures kept in unsaved-capture files (written "
+                                   "when the logbook was locked, read-only or full), analyse "
+                                   "them, and remove each file once its capture is stored.")
+    s.add_argument("file", nargs="+", help="unsaved-capture file(s) named by `capture`")
+    s.add_argument("--busy-wait-s", type=float, default=60.0,
+                   help="how long to wait for a busy logbook (default 60)")
+    s.set_defaults(func=cmd_recover)

@@ -85,10 +85,18 @@ def cmd_capture(args) -> int:
     params = {"range": args.range, "max_s": args.max_s,
               "settle_band": args.settle_band, "settle_hold_s": args.settle_hold_s}
     bar, update = _progress_bar(args.max_s)
+    told = []
+
+    def on_busy(waited_s):
+        if not told:  # once: the wait goes on quietly
+            told.append(waited_s)
+            ui.err.print(f"The logbook is busy (another program is using it): waiting up to "
+                         f"{args.busy_wait_s:g} s to store the capture...", markup=False)
     try:
         with bar:
             raw = capture_into_logbook(db_path(args), args.port, args.tube, args.section,
-                                       args.type, params, update)
+                                       args.type, params, update,
+                                       store_wait_s=args.busy_wait_s, on_busy=on_busy)
     except UserInterrupt as e:
         off = ("heater off, confirmed by the tester" if e.off_confirmed else
                "heater-off NOT confirmed: the tester switches off by itself when "
@@ -102,16 +110,21 @@ def cmd_capture(args) -> int:
     if args.range is None and not args.json:
         ui.err.print(f"current range: {raw.params.get('range')} (chosen from the type's rated "
                      "current; --range to choose)", markup=False, highlight=False)
-    cause = (raw.trip or {}).get("cause")
+    cause = raw.trip_cause
     if cause == "over_current" and raw.params.get("range") == "low":
         ui.warn("Over-current trip on the low range: a power tube's or rectifier's inrush "
                 "needs --range high. If it trips there too, suspect a shorted heater.")
     if not raw.complete:
         ui.warn(f"Capture incomplete: {raw.incomplete_reason}")
         return 2
+    suspect = {sec: m["not_judged"] for sec, m in
+               (raw.analysis or {}).get("sections", {}).items() if m.get("tester_fault")}
+    for sec, why in suspect.items():
+        ui.warn(f"Section {sec} not judged: {why}.")
     if cause in ("open_heater", "over_current"):
         ui.warn(f"The tester switched off: {cause.replace('_', ' ')}. The capture is stored "
-                "and judged as what it is.")
+                "and judged as what it is" + (" (a fault of the tester, see above)."
+                                              if suspect else "."))
         return 3
     return 0
 
@@ -160,5 +173,8 @@ def register(sub, common) -> None:
                    help="relative band for the adaptive end (default 0.005)")
     s.add_argument("--settle-hold-s", type=float, default=2.0,
                    help="time the current must stay in the band, s (default 2)")
+    s.add_argument("--busy-wait-s", type=float, default=60.0,
+                   help="how long to wait for a logbook another program is using before "
+                        "the capture is kept in a file for `glowtrace recover` (default 60)")
     s.set_defaults(func=cmd_capture)
 

@@ -235,7 +235,7 @@ def worst(statuses) -> str:
 # loading ------------------------------------------------------------------
 _ROWS_SQL = """
 SELECT s.* FROM section_metrics s
-WHERE s.version = (SELECT max(version) FROM section_metrics x
+WHERE s.version = (SELECT max(version COLLATE analysis_version) FROM section_metrics x
                    WHERE x.capture_uuid = s.capture_uuid AND x.section = s.section)
 {where} ORDER BY s.tube, s.section, s.at, s.capture_uuid"""
 
@@ -296,7 +296,8 @@ def type_population(store: Store, type_name: str) -> dict:
     cols = ", ".join(METRICS)
     rows = store.db.execute(
         f"SELECT tube, section, max(at), {cols} FROM section_metrics "
-        "WHERE scored = 1 AND version = (SELECT max(version) FROM section_metrics) "
+        "WHERE scored = 1 AND version = (SELECT max(version COLLATE analysis_version) "
+        "FROM section_metrics) "
         "AND tube IN (SELECT label FROM tubes WHERE type = ?) GROUP BY tube, section",
         [type_name]).fetchall()
     return {m: [r[3 + k] for r in rows if r[3 + k] is not None] for k, m in enumerate(METRICS)}
@@ -467,7 +468,8 @@ def history(store: Store, label: str, cfg: dict) -> dict:
     rows = store.db.execute(
         "SELECT c.uuid, c.started_at, c.section, c.source, c.complete, c.incomplete_reason, "
         "(SELECT result FROM analyses a WHERE a.capture_uuid = c.uuid "
-        " ORDER BY a.version DESC LIMIT 1) FROM captures c WHERE c.tube = ? "
+        " ORDER BY a.version COLLATE analysis_version DESC LIMIT 1) FROM captures c "
+        "WHERE c.tube = ? "
         "ORDER BY c.started_at, c.uuid", [label]).fetchall()
     excluded = {(r["capture_uuid"], sec): r for sec, rs in
                 section_rows.items() for r in rs}

@@ -4,7 +4,9 @@ they were taken with. A capture is written in one transaction: it is there
 whole or not at all."""
 
 import json
+import os
 import sqlite3
+import time
 from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
@@ -20,6 +22,20 @@ from ..errors import StoreError
 
 
 IMPORT_ENCODING = "float64-columns-lzma-v1"
+
+
+def version_key(version: str) -> tuple:
+    """Analysis versions compare by their numbers ("1.10" after "1.9"), not
+    as text; anything that is not dotted numbers sorts before them."""
+    try:
+        return (1, tuple(int(p) for p in str(version).split(".")))
+    except ValueError:
+        return (0, (), str(version))
+
+
+def _version_cmp(a: str, b: str) -> int:
+    ka, kb = version_key(a), version_key(b)
+    return (ka > kb) - (ka < kb)
 
 
 def _now() -> str:
@@ -59,7 +75,7 @@ RATED_COLUMNS = ("rated_hot_current_a", "rated_inrush_ratio", "rated_warmup_90_s
 # warnings that keep a capture out of history scoring (it is still shown)
 SERIOUS = ("open heater", "shorted", "clipped", "too short", "not analysed",
            "no resistance rise", "not a cold start", "incomplete", "no samples",
-           "too far from its rated")
+           "too far from its rated", "intermittent contact")
 
 
 def _m3_records(db: sqlite_utils.Database) -> None:
@@ -150,38 +166,104 @@ def _insert(conn, table: str, row: dict) -> None:
     conn.execute(f"INSERT INTO [{table}] ({cols}) VALUES ({marks})", list(row.values()))
 
 
+class StoreBusy(StoreError):
+    """The logbook stayed locked by another program past the wait allowed."""
+
+
+BUSY_POLL_S = 0.5  # how often a waiting write tries again (and says so)
+
+
 class Store:
     def __init__(self, path: str | Path, create: bool = True, timeout: float = 5.0):
         self.path = Path(path)
+        if self.path.is_dir():
+            raise StoreError(f"{self.path} is a directory, not a logbook: give a file name")
         if not create and not self.path.exists():
             raise StoreError(f"no database at {self.path}")
-        self.path.parent.mkdir(parents=True, exist_ok=True)
+        if self.path.exists() and self.path.stat().st_size == 0:
+            # SQLite would quietly make any empty file a logbook
+            raise StoreError(f"{self.path} is an empty file, not a glowtrace logbook: "
+                             "remove it or give another --db")
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as e:
+            raise StoreError(f"cannot make the folder for the logbook {self.path}: "
+                             f"{e.strerror}") from None
+        self.timeout = timeout
         try:
             # autocommit mode: transactions are opened and closed explicitly
             conn = sqlite3.connect(self.path, timeout=timeout, isolation_level=None)
             conn.execute("PRAGMA foreign_keys = ON")
+            # `COLLATE analysis_version` wherever the newest analysis is chosen
+            conn.create_collation("analysis_version", _version_cmp)
             self.db = sqlite_utils.Database(conn)
+            self._refuse_foreign()
             self._migrate()
         except sqlite3.DatabaseError as e:
             raise self._error("cannot use database", e) from None
 
+    def _refuse_foreign(self) -> None:
+        """Another program's SQLite file is not made into a logbook."""
+        names = set(self.db.table_names())
+        if names and "schema_migrations" not in names:
+            raise StoreError(f"{self.path} is an SQLite database of another program, not a "
+                             "glowtrace logbook: it was left untouched")
+
     def _error(self, what: str, e: Exception) -> StoreError:
-        if "locked" in str(e):
-            return StoreError(f"{what} {self.path}: it is locked by another program "
-                              "(is another glowtrace writing to it?)")
+        text = str(e)
+        if "locked" in text or "busy" in text:
+            return StoreBusy(f"{what} {self.path}: it is locked by another program "
+                             "(is another glowtrace writing to it?)")
+        if "readonly" in text or "read-only" in text:
+            return StoreError(f"{what} {self.path}: the logbook is read-only (check the "
+                              "file's and its folder's permissions)")
         return StoreError(f"{what} {self.path}: {e}")
+
+    def check_writable(self) -> None:
+        """Refuse a logbook that cannot take a capture, before the heater is
+        switched on (a busy one is fine: the capture waits for it)."""
+        for p, what in ((self.path, "the logbook"), (self.path.parent, "its folder")):
+            if not os.access(p, os.W_OK):
+                raise StoreError(f"cannot write to the logbook {self.path}: {what} is "
+                                 "read-only (check its permissions, or give another --db)")
 
     @contextmanager
     def transaction(self):
-        """All or nothing: BEGIN IMMEDIATE ... COMMIT, ROLLBACK on any error."""
+        """All or nothing: BEGIN IMMEDIATE ... COMMIT, ROLLBACK on any error
+        (a failed COMMIT too, so no lock is left behind)."""
         conn = self.db.conn
-        conn.execute("BEGIN IMMEDIATE")
+        try:
+            conn.execute("BEGIN IMMEDIATE")
+        except sqlite3.DatabaseError as e:
+            raise self._error("cannot write to", e) from None
         try:
             yield conn
-        except BaseException:
-            conn.execute("ROLLBACK")
+            conn.execute("COMMIT")
+        except BaseException as e:
+            if conn.in_transaction:
+                conn.execute("ROLLBACK")
+            if isinstance(e, sqlite3.DatabaseError):
+                raise self._error("cannot write to", e) from None
             raise
-        conn.execute("COMMIT")
+
+    def write_waiting(self, write, wait_s: float, on_busy=None):
+        """Run write() (one transaction) and, while another program holds the
+        logbook, try again every BUSY_POLL_S until wait_s has passed; raise
+        StoreBusy after that. on_busy(waited_s) is told at every try."""
+        start = time.monotonic()
+        self.db.conn.execute(f"PRAGMA busy_timeout = {int(BUSY_POLL_S * 1000)}")
+        try:
+            while True:
+                try:
+                    return write()
+                except StoreBusy:
+                    waited = time.monotonic() - start
+                    if waited >= wait_s:
+                        raise
+                    if on_busy:
+                        on_busy(waited)
+        finally:
+            self.db.conn.execute(f"PRAGMA busy_timeout = {int(self.timeout * 1000)}")
 
     def close(self) -> None:
         self.db.conn.close()
@@ -218,13 +300,15 @@ class Store:
 
     # captures ------------------------------------------------------------
     def save_capture(self, raw: RawCapture, tube_type: str | None = None,
-                     notes: str | None = None) -> str:
+                     notes: str | None = None, wait_s: float = 0.0, on_busy=None) -> str:
+        """Store a capture whole, in one short transaction (the samples are
+        packed before it); wait up to wait_s for a busy logbook."""
         meta_blob, samples_blob = samples_codec.encode(raw.blocks)
         row = {
             "uuid": raw.uuid, "tube": raw.tube, "section": raw.section,
             "started_at": raw.started_at, "stored_at": _now(),
             "complete": int(raw.complete), "incomplete_reason": raw.incomplete_reason,
-            "end_reason": raw.end_reason, "trip_cause": raw.trip["cause"] if raw.trip else None,
+            "end_reason": raw.end_reason, "trip_cause": raw.trip_cause,
             "board_id": raw.hello.get("board"), "firmware": raw.hello.get("firmware"),
             "port": raw.port, "ambient_c": raw.ambient_c, "n_sets": raw.n_sets,
             "n_blocks": len(raw.blocks), "params": json.dumps(raw.params),
@@ -232,7 +316,8 @@ class Store:
             "end_record": json.dumps(raw.end), "trip_record": json.dumps(raw.trip),
             "link": json.dumps(raw.link),
         }
-        try:
+
+        def write():
             with self.transaction() as conn:  # the capture is whole or absent
                 if raw.tube is not None and not self.db["tubes"].count_where(
                         "label = ?", [raw.tube]):
@@ -243,6 +328,10 @@ class Store:
                     "capture_uuid": raw.uuid, "encoding": samples_codec.ENCODING,
                     "channels": json.dumps(raw.channels), "n_sets": raw.n_sets,
                     "blocks": meta_blob, "samples": samples_blob})
+        try:
+            self.write_waiting(write, wait_s, on_busy)
+        except StoreError as e:
+            raise type(e)(f"capture {raw.uuid} not stored: {e}") from None
         except sqlite3.DatabaseError as e:
             raise self._error(f"capture {raw.uuid} not stored in", e) from None
         return raw.uuid
@@ -260,13 +349,14 @@ class Store:
                "n_sets": len(data), "n_blocks": 0, "params": json.dumps({"section": section}),
                "hello": json.dumps({"source": source_name}), "phases": "[]",
                "end_record": "null", "trip_record": "null", "link": "{}", "source": "import"}
+        packed = lzma.compress(data.tobytes())  # before the transaction, not inside it
         try:
             with self.transaction() as conn:
                 _insert(conn, "captures", row)
                 _insert(conn, "capture_samples", {
                     "capture_uuid": uuid, "encoding": IMPORT_ENCODING,
                     "channels": json.dumps(names), "n_sets": len(data), "blocks": b"",
-                    "samples": lzma.compress(data.tobytes())})
+                    "samples": packed})
         except sqlite3.DatabaseError as e:
             raise self._error(f"curve {uuid} not stored in", e) from None
         return uuid
@@ -283,9 +373,10 @@ class Store:
         return c, {n: data[:, k] for k, n in enumerate(names)}
 
     def find_uuid(self, prefix: str) -> str:
+        # a prefix is matched as text: % and _ in it are not wildcards
         rows = self.db.execute(
-            "SELECT uuid FROM captures WHERE uuid LIKE ? ORDER BY uuid LIMIT 2",
-            [prefix + "%"]).fetchall()
+            "SELECT uuid FROM captures WHERE substr(uuid, 1, length(?)) = ? "
+            "ORDER BY uuid LIMIT 2", [prefix, prefix]).fetchall() if prefix else []
         if not rows:
             raise StoreError(f"no capture {prefix!r} in {self.path}")
         if len(rows) > 1:
@@ -347,7 +438,7 @@ class Store:
         if version:
             sql += " AND version = ?"
             args.append(version)
-        sql += " ORDER BY created_at DESC, version DESC LIMIT 1"
+        sql += " ORDER BY version COLLATE analysis_version DESC, created_at DESC LIMIT 1"
         row = self.db.execute(sql, args).fetchone()
         return json.loads(row[0]) if row else None
 

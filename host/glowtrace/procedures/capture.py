@@ -10,8 +10,11 @@ from ..analysis.runner import analyze_stored
 from ..tester.raw import RawCapture
 from ..errors import GlowtraceError
 from ..tester.sockets import check_for_tester, range_for
+from ..logbook.recovery import load_unsaved, save_unsaved
 from ..logbook.store import Store
 from ..tester.driver import CaptureInterrupted, connect
+
+STORE_WAIT_S = 60.0  # default wait for a logbook another program holds
 
 
 # trips that stop a capture for the bench's sake, not the tube's: what is
@@ -19,6 +22,40 @@ from ..tester.driver import CaptureInterrupted, connect
 BENCH_TRIPS = {"host_silent": "the tester stopped: the host went silent",
                "exception": "the tester stopped on a firmware error",
                "max_on_time": "the tester stopped at its maximum on-time"}
+
+
+class CaptureNotStored(GlowtraceError):
+    """The logbook could not take a finished capture: it is kept whole in a
+    file (`path`) that `glowtrace recover` stores later."""
+
+    def __init__(self, why: str, path, raw: RawCapture):
+        super().__init__(f"{why}. The capture is kept whole in {path}: "
+                         f"`glowtrace recover {path}` stores it once the logbook is free")
+        self.path = path
+        self.raw = raw
+
+
+def store_or_keep(store: Store, raw: RawCapture, tube_type: str | None, notes: str | None,
+                  wait_s: float, on_busy=None) -> None:
+    """Store the capture, waiting up to wait_s for a busy logbook; if the
+    logbook still cannot take it, keep it whole in an unsaved-capture file
+    and raise CaptureNotStored naming that file. Nothing received is lost."""
+    try:
+        store.save_capture(raw, tube_type=tube_type, notes=notes, wait_s=wait_s,
+                           on_busy=on_busy)
+    except (GlowtraceError, KeyboardInterrupt) as e:
+        why = str(e) if isinstance(e, GlowtraceError) else \
+            f"interrupted while waiting for the logbook {store.path}"
+        path = save_unsaved(raw, tube_type, notes, store.path, why)
+        raise CaptureNotStored(why, path, raw) from None
+
+
+def analyze_after_storing(store: Store, raw: RawCapture) -> dict:
+    try:
+        return analyze_stored(store, raw.uuid)
+    except GlowtraceError as e:
+        # the raw capture is safe; `glowtrace reanalyze` can try again
+        return {"warnings": [f"analysis not stored ({e}): run `glowtrace reanalyze`"]}
 
 
 class UserInterrupt(KeyboardInterrupt):
@@ -32,9 +69,10 @@ class UserInterrupt(KeyboardInterrupt):
 
 def run_capture(port_url: str, store: Store, tube: str, section: str,
                 params: dict | None = None, progress=None, tube_type: str | None = None,
-                notes: str | None = None, started_at: str | None = None) -> RawCapture:
+                notes: str | None = None, started_at: str | None = None,
+                store_wait_s: float = STORE_WAIT_S, on_busy=None) -> RawCapture:
     """started_at: back-dates the capture (only the demo uses it, to lay down
-    its invented earlier visits)."""
+    its invented earlier visits). store_wait_s, on_busy: see store_or_keep."""
     with connect(port_url) as tester:
         try:
             params = dict(params or {})
@@ -51,18 +89,17 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
             except CaptureInterrupted as e:
                 raw = e.raw
                 raw.incomplete_reason = e.reason
-            cause = (raw.trip or {}).get("cause")
+            cause = raw.trip_cause
             if cause in BENCH_TRIPS and raw.incomplete_reason is None:
                 # the curve was cut short for a reason that is not the tube
                 raw.incomplete_reason = BENCH_TRIPS[cause]
             if started_at:
                 raw.started_at = started_at
-            store.save_capture(raw, tube_type=tube_type, notes=notes)
-            try:
-                raw.analysis = analyze_stored(store, raw.uuid)
-            except (GlowtraceError, ValueError) as e:
-                # the raw capture is safe; `glowtrace reanalyze` can try again
-                raw.analysis = {"warnings": [f"analysis failed: {e}"]}
+            if raw.incomplete_reason == "interrupted by the user":
+                # the user wants out: heater off first, then store
+                tester.abort()
+            store_or_keep(store, raw, tube_type, notes, store_wait_s, on_busy)
+            raw.analysis = analyze_after_storing(store, raw)
             if raw.incomplete_reason == "interrupted by the user":
                 stop = UserInterrupt(raw)
                 stop.off_confirmed = tester.ensure_off()
@@ -74,7 +111,8 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
 
 def capture_into_logbook(db_path, port_url: str | None, tube: str, section: str,
                          tube_type: str | None = None, params: dict | None = None,
-                         progress=None) -> RawCapture:
+                         progress=None, store_wait_s: float = STORE_WAIT_S,
+                         on_busy=None) -> RawCapture:
     """`glowtrace capture`: everything checked that can be checked before the
     heater is switched on (the type known, the tube's recorded type and its
     sections agreeing), the tester found when no port is given, then
@@ -90,6 +128,31 @@ def capture_into_logbook(db_path, port_url: str | None, tube: str, section: str,
             kind = check_capture_target(store, tube, tube_type, section)
     else:
         kind = check_capture_target(None, tube, tube_type, section)
-    port = port_url or find_tester()
     with Store(db_path) as store:
-        return run_capture(port, store, tube, section, params, progress, tube_type=kind)
+        store.check_writable()  # before the heater runs, not after
+        port = port_url or find_tester()
+        return run_capture(port, store, tube, section, params, progress, tube_type=kind,
+                           store_wait_s=store_wait_s, on_busy=on_busy)
+
+
+def recover_into_logbook(db_path, files: list, wait_s: float = STORE_WAIT_S,
+                         on_busy=None) -> list[dict]:
+    """`glowtrace recover`: store captures kept in unsaved-capture files,
+    analyse them, and remove each file once its capture is in the logbook.
+    A capture already there is not stored twice."""
+    from pathlib import Path
+    loaded = [(Path(f), *load_unsaved(f)) for f in files]  # every file checked first
+    out = []
+    with Store(db_path) as store:
+        store.check_writable()
+        for path, raw, tube_type, notes in loaded:
+            there = store.db.execute("SELECT 1 FROM captures WHERE uuid = ?",
+                                     [raw.uuid]).fetchone()
+            if not there:
+                store.save_capture(raw, tube_type=tube_type, notes=notes, wait_s=wait_s,
+                                   on_busy=on_busy)
+                raw.analysis = analyze_after_storing(store, raw)
+            path.unlink()
+            out.append({"file": str(path), "capture": raw.uuid, "tube": raw.tube,
+                        "stored": not there, "complete": raw.complete})
+    return out

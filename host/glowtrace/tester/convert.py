@@ -92,7 +92,7 @@ def summary(raw: RawCapture) -> dict:
     out = {"uuid": raw.uuid, "tube": raw.tube, "section": raw.section,
            "started_at": raw.started_at, "complete": raw.complete,
            "incomplete_reason": raw.incomplete_reason, "end_reason": raw.end_reason,
-           "trip": raw.trip["cause"] if raw.trip else None, "sets": raw.n_sets,
+           "trip": raw.trip_cause, "sets": raw.n_sets,
            "ambient_c": raw.ambient_c}
     curve = to_physical(raw)
     on = curve.t_s >= 0

@@ -167,7 +167,10 @@ class Tester:
                 if f.mtype == protocol.BLOCK:
                     raw.blocks.append(protocol.Block.parse(f.body))
                     if progress:
-                        progress(raw)
+                        try:
+                            progress(raw)
+                        except Exception:  # noqa: BLE001 - a display must not end a capture
+                            progress = None
                 elif f.mtype == protocol.CAPTURE_START:
                     start = f.json()
                     raw.params = start["params"]

@@ -45,6 +45,14 @@ class RawCapture:
         return self.end["reason"] if self.end else None
 
     @property
+    def trip_cause(self) -> str | None:
+        """Why the firmware switched off early: from the TRIP record, or from
+        the end record when the TRIP frame itself was lost."""
+        if self.trip and self.trip.get("cause"):
+            return self.trip["cause"]
+        return (self.end or {}).get("trip")
+
+    @property
     def n_sets(self) -> int:
         return sum(b.n_sets for b in self.blocks)
 
