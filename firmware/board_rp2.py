@@ -30,6 +30,7 @@ _ADC_DIV = _ADC_BASE + 0x10
 _DREQ_ADC = 48 if _RP2350 else 36
 _ADC_CLOCK_HZ = const(48000000)
 _WDT_MS = const(8000)
+_WRITE_WAIT_MS = const(50)  # longest wait to hand one frame to USB
 _FE_PATH = "/frontend.json"
 _CAL_PATH = "/calibration.json"
 REPL_FLAG = "/glowtrace_repl"
@@ -73,6 +74,8 @@ class Rp2Board:
         self.stdout = sys.stdout.buffer
         self.poller = select.poll()
         self.poller.register(sys.stdin, select.POLLIN)
+        self.out_poller = select.poll()
+        self.out_poller.register(sys.stdout, select.POLLOUT)
         micropython.kbd_intr(-1)  # 0x03 in binary frames must not interrupt
         self.wdt = machine.WDT(timeout=_WDT_MS)
 
@@ -218,7 +221,14 @@ class Rp2Board:
         return bytes(data)
 
     def write(self, data):
+        # bounded: a host that stops reading must not hold the capture loop
+        # (the supervisor runs between blocks); a frame the USB endpoint
+        # cannot take within _WRITE_WAIT_MS is dropped and the host sees
+        # the gap in the frame numbers
+        if not self.out_poller.poll(_WRITE_WAIT_MS):
+            return False
         self.stdout.write(data)
+        return True
 
     def idle(self, ms):
         self.poller.poll(ms)

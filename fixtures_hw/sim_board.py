@@ -17,6 +17,9 @@ from glowfw import frontend
 from heater_model import HeaterSection
 
 
+WRITE_WAIT_MS = 50  # longest wait to write one frame (see write)
+
+
 class SimReset(BaseException):
     """Raised inside sampling to stand for a watchdog or brown-out reset."""
 
@@ -102,6 +105,9 @@ class SimBoard:
         self.stdout = sys.stdout.buffer
         self.poller = select.poll()
         self.poller.register(sys.stdin, select.POLLIN)
+        self.out_poller = select.poll()
+        self.out_poller.register(sys.stdout, select.POLLOUT)
+        self.cut = False  # the last frame was cut short
 
     # clocks ------------------------------------------------------------
     def now_us(self):
@@ -253,13 +259,39 @@ class SimBoard:
             if ev[0][1] & (select.POLLHUP | select.POLLERR):
                 raise SystemExit("host side of the link closed")
             b = self.stdin.read(1)
+            if b is None:  # non-blocking (see write): nothing after all
+                break
             if not b:
                 raise SystemExit("link closed")
             data.extend(b)
         return bytes(data)
 
     def write(self, data):
-        self.stdout.write(data)
+        """Write a frame within WRITE_WAIT_MS, or drop what is left of it.
+        The host makes the pty non-blocking (tester/sim.py), so a host that
+        stops reading fills the pty and write() returns short instead of
+        holding the firmware with the heater on. After a cut frame a 0x00
+        goes first, so the host's decoder resynchronises at once."""
+        if self.cut:
+            data = b"\x00" + data
+        mv = memoryview(data)
+        deadline = time.ticks_add(time.ticks_ms(), WRITE_WAIT_MS)
+        while len(mv):
+            try:
+                n = self.stdout.write(mv)
+            except OSError:  # EAGAIN on some ports instead of None
+                n = None
+            if n:
+                mv = mv[n:]
+                continue
+            left = time.ticks_diff(deadline, time.ticks_ms())
+            if left <= 0:
+                if len(mv) < len(data):  # part of it went: a delimiter is owed
+                    self.cut = True
+                return False
+            self.out_poller.poll(left)
+        self.cut = False
+        return True
 
     def idle(self, ms):
         """Wait for input; the heater is off, so simulated time follows the

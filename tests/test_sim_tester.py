@@ -138,3 +138,31 @@ def test_probe_finds_glowtrace_on_a_port():
         hello = probe(sim.path)
     assert hello["board"] == "sim-0777"
     assert probe("/dev/null") is None
+
+
+def test_a_host_that_stops_reading_cannot_hold_the_heater_on():
+    """The host keeps the port open but reads and writes nothing: the
+    firmware's writes fill the pty and must not block it with the heater on;
+    host silence trips within silence_ms of wall time (TRIP's `ms` is the
+    link clock, as in STATUS)."""
+    stall_s, silence_ms = 3.0, 500
+    with sim_tester(pace=1.0) as t:
+        seq = t.link.seq
+        t.link.send(protocol.CAPTURE, b'{"section": "A", "silence_ms": %d}' % silence_ms)
+        ack = t._await({protocol.REPLY}, 3.0, reply_to=seq)
+        assert ack is not None and ack.json()["ok"]
+        time.sleep(stall_s)  # the pty fills up within about a second at 75 kB/s
+        frames = []
+        while (f := t.link.receive(0.5)) is not None:
+            frames.append(f)
+        status = t.status()
+    end = [f.json() for f in frames if f.mtype == protocol.CAPTURE_END]
+    trip = status["last_trip"]  # the TRIP frame itself may be one of those dropped
+    assert trip["cause"] == "host_silent"
+    # the trip came during the stall, not after the host read again
+    assert status["ms"] - trip["ms"] >= 1000 * stall_s - silence_ms - 1200
+    assert status["heater"] == 0
+    # frames that could not be written were dropped and counted, so the host
+    # sees a gap: the capture can never be taken for a whole one
+    assert t.link.stats.lost_frames > 0 or t.link.stats.bad_frames > 0
+    assert not end or end[0]["dropped"] > 0

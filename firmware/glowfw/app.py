@@ -99,9 +99,9 @@ class App:
         self.next_id = (self.next_id + 1) & 0xFFFF or 1
         self.capture = Capture(self.board, self.link, self.sup, cid, params)
         try:
-            reason = self.capture.run()
-            if reason == "trip":
-                self.last_trip = cid
+            self.capture.run()
+            if self.capture.trip_record is not None:
+                self.last_trip = self.capture.trip_record
         finally:
             self.capture = None
             self.board.heater(0)

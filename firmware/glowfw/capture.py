@@ -81,6 +81,7 @@ class Capture:
         self.block_index = 0
         self.sets = 0
         self.abort_requested = False
+        self.trip_record = None
 
     def send_block(self, phase_no, t_rel, interval, oversample, buf, first, count):
         nch = self.nch
@@ -173,9 +174,13 @@ class Capture:
         if t_off_rel is None:
             t_off_rel = time.ticks_diff(t_off, t_on)
         if cause is not None:
-            self.link.send_json(proto.TRIP, {"id": self.id, "cause": cause,
-                                             "at_us": t_off_rel, "detail": detail})
+            # ms: the link clock (wall time) at the trip, comparable with STATUS;
+            # kept for STATUS too, in case this frame cannot reach the host
+            self.trip_record = {"id": self.id, "cause": cause, "at_us": t_off_rel,
+                                "detail": detail, "ms": b.link_ms()}
+            self.link.send_json(proto.TRIP, self.trip_record)
         self.link.send_json(proto.CAPTURE_END, {
             "id": self.id, "reason": reason, "trip": cause, "detail": detail,
-            "blocks": self.block_index, "sets": self.sets, "off_us": t_off_rel})
+            "blocks": self.block_index, "sets": self.sets, "off_us": t_off_rel,
+            "dropped": self.link.dropped})
         return reason

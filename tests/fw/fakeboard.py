@@ -77,6 +77,7 @@ class FakeBoard:
 
     def write(self, data):
         self.out.extend(data)
+        return True
 
     def idle(self, ms):
         pass

@@ -144,14 +144,17 @@ class Tester:
         if self.hello is None:
             self.identify()
         raw = RawCapture(tube=tube, section=section, port=self.port_name, hello=self.hello)
-        self.link.reset_stats()
         seq = self._send_json(protocol.CAPTURE, dict(params, section=section))
         reply = self._await({protocol.REPLY}, 3.0, reply_to=seq)
         if reply is None:
             raise LinkError("the tester did not acknowledge the capture command")
         if not reply.json()["ok"]:
             raise DeviceError(f"the tester refused the capture: {reply.json()['msg']}")
+        # count the link's losses from the acknowledgement on: a stale frame
+        # of the handshake lost before it is not a hole in this capture
+        self.link.reset_stats()
         last_hb = last_rx = time.monotonic()
+        capture_id = None
         try:
             while True:
                 now = time.monotonic()
@@ -166,6 +169,7 @@ class Tester:
                 last_rx = time.monotonic()
                 if f.mtype == protocol.BLOCK:
                     raw.blocks.append(protocol.Block.parse(f.body))
+                    capture_id = raw.blocks[-1].capture_id
                     if progress:
                         try:
                             progress(raw)
@@ -173,6 +177,7 @@ class Tester:
                             progress = None
                 elif f.mtype == protocol.CAPTURE_START:
                     start = f.json()
+                    capture_id = start.get("id")
                     raw.params = start["params"]
                     raw.channels = start["channels"]
                     raw.ambient_c = start.get("ambient_c")
@@ -191,10 +196,24 @@ class Tester:
             self.abort()
             raise CaptureInterrupted("interrupted by the user", raw) from None
         except LinkError as e:
+            self._trip_from_status(raw, capture_id)
             raise CaptureInterrupted(str(e), raw) from None
         finally:
             raw.link = self.link.stats.as_dict()
         why = raw.check_whole()
         if why:
+            self._trip_from_status(raw, capture_id)
             raise CaptureInterrupted(why, raw)
         return raw
+
+    def _trip_from_status(self, raw: RawCapture, capture_id: int | None) -> None:
+        """A capture that is not whole may have lost its TRIP frame: the
+        firmware keeps its last trip in STATUS, so ask (best effort)."""
+        if raw.trip is not None or capture_id is None:
+            return
+        try:
+            last = self.status(1.0).get("last_trip")
+        except GlowtraceError:
+            return
+        if isinstance(last, dict) and last.get("id") == capture_id:
+            raw.trip = last

@@ -153,6 +153,10 @@ class SimTester:
             self._state = tempfile.TemporaryDirectory(prefix="glowsim-state-")
             self.scenario = dict(self.scenario, state_dir=self._state.name)
         master, slave = pty.openpty()
+        # non-blocking for the simulated board too (it shares this open
+        # file): its writes return short when the host stops reading, as a
+        # board's bounded USB write gives up, instead of blocking forever
+        os.set_blocking(master, False)
         # raw before anyone writes: no echo, no CR/LF translation, no signals
         tty.setraw(slave)
         self.path = os.ttyname(slave)
