@@ -11,7 +11,7 @@ import pytest
 
 PACKAGE = Path(__file__).resolve().parent.parent / "host" / "glowtrace"
 FLOW = ["tester", "logbook", "analysis", "judgement", "outputs", "procedures", "cli"]
-SHARED = {"__init__", "paths", "errors", "catalogue", "config"}
+SHARED = {"__init__", "paths", "errors", "catalogue", "config", "outfile"}
 
 
 def _modules():

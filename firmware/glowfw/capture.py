@@ -41,13 +41,15 @@ def parse_params(raw, board):
         p["max_on_s"] = board_max
     # the capture's length and the on-time limit are separate: the supervisor
     # trips at max_on_s even if the capture asked for longer
+    if not float(p["max_s"]) > 0:  # also refuses NaN
+        raise CaptureError("max_s must be a positive number of seconds")
     p["max_s"] = min(max(float(p["max_s"]), 0.05), board_max)
     fs = board.full_scale_a(p["range"])
     if p["trip_a"] is None or p["trip_a"] > fs:
         p["trip_a"] = 0.95 * fs
     if p["open_a"] is None:
         p["open_a"] = 0.02 * fs
-    if not (0 < p["settle_band"] < 0.5 and p["settle_hold_s"] > 0):
+    if not (0 < p["settle_band"] < 0.5 and p["settle_hold_s"] > 0):  # False for NaN too
         raise CaptureError("settle band must be in (0, 0.5) and hold time > 0")
     if not 100 <= p["silence_ms"] <= 10000:
         raise CaptureError("silence_ms must be 100..10000")

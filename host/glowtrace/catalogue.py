@@ -5,6 +5,7 @@ file says so). Users add or correct types in their own TOML file of the same
 form: $GLOWTRACE_TUBES, else ~/.config/glowtrace/tubes.toml."""
 
 import difflib
+import math
 import tomllib
 from dataclasses import dataclass
 from functools import lru_cache
@@ -58,28 +59,54 @@ class TubeType:
         return self.heater
 
 
+def _number(x) -> bool:
+    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
+
+
 def _rating(d, where: str) -> Rating | None:
     if d is None:
         return None
-    try:
-        r = Rating(float(d["volts"]), float(d["amps"]))
-    except (KeyError, TypeError, ValueError):
-        raise GlowtraceError(f"{where}: a rating needs numeric volts and amps") from None
+    if not (isinstance(d, dict) and _number(d.get("volts")) and _number(d.get("amps"))):
+        raise GlowtraceError(f"{where}: a rating needs numeric volts and amps "
+                             f"({{volts = V, amps = A}}), not {d!r}")
+    r = Rating(float(d["volts"]), float(d["amps"]))
     if r.volts <= 0 or r.amps <= 0:
         raise GlowtraceError(f"{where}: volts and amps must be positive")
     return r
 
 
-def _parse(name: str, d: dict, origin: str) -> TubeType:
+def _field(d: dict, key: str, kind, where: str, default=None):
+    """d[key] if it is of the expected kind (text, number, list of text,
+    list of numbers, true/false), else one clear error."""
+    v = d.get(key, default)
+    if v is None:
+        return default
+    ok = {"text": isinstance(v, str), "number": _number(v), "bool": isinstance(v, bool),
+          "texts": isinstance(v, list) and all(isinstance(x, str) for x in v),
+          "numbers": isinstance(v, list) and all(_number(x) for x in v)}[kind]
+    if not ok:
+        words = {"text": "text", "number": "a finite number", "bool": "true or false",
+                 "texts": "a list of text", "numbers": "a list of numbers"}
+        raise GlowtraceError(f"{where}: {key} must be {words[kind]}, not {v!r}")
+    return v
+
+
+def _parse(name: str, d, origin: str) -> TubeType:
     where = f"{origin}, type {name}"
+    if not isinstance(d, dict):
+        raise GlowtraceError(f"{where}: a type is a table ([types.{name}]), not {d!r}")
     t = TubeType(
-        name=name, aliases=tuple(d.get("aliases", ())), base=d.get("base"),
+        name=name, aliases=tuple(_field(d, "aliases", "texts", where, [])),
+        base=_field(d, "base", "text", where),
         heater=_rating(d.get("heater"), where), series=_rating(d.get("series"), where),
         parallel=_rating(d.get("parallel"), where),
-        heater_pins=tuple(d.get("heater_pins", ())), centre_tap_pin=d.get("centre_tap_pin"),
-        controlled_warmup_s=d.get("controlled_warmup_s"), filament=bool(d.get("filament")),
-        tungsten_k=float(d.get("tungsten_k", 1.0)),
-        hot_current_tolerance=d.get("hot_current_tolerance"), source=d.get("source", origin))
+        heater_pins=tuple(_field(d, "heater_pins", "numbers", where, [])),
+        centre_tap_pin=_field(d, "centre_tap_pin", "number", where),
+        controlled_warmup_s=_field(d, "controlled_warmup_s", "number", where),
+        filament=_field(d, "filament", "bool", where, False),
+        tungsten_k=float(_field(d, "tungsten_k", "number", where, 1.0)),
+        hot_current_tolerance=_field(d, "hot_current_tolerance", "number", where),
+        source=_field(d, "source", "text", where, origin))
     if (t.heater is None) == (t.parallel is None):
         raise GlowtraceError(f"{where}: give either heater, or series and parallel")
     if (t.series is None) != (t.parallel is None):
@@ -103,9 +130,15 @@ class Catalogue:
         for f in files:
             try:
                 data = tomllib.loads(Path(f).read_text())
-            except (OSError, tomllib.TOMLDecodeError) as e:
+            except IsADirectoryError:
+                raise GlowtraceError(f"tube catalogue {f} is a directory, not a file") from None
+            except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as e:
                 raise GlowtraceError(f"cannot read tube catalogue {f}: {e}") from None
-            for name, d in data.get("types", {}).items():
+            types_table = data.get("types", {})
+            if not isinstance(types_table, dict):
+                raise GlowtraceError(f"tube catalogue {f}: `types` must be tables of types "
+                                     f"([types.12AX7] ...), not {types_table!r}")
+            for name, d in types_table.items():
                 types[str(name)] = _parse(str(name), d, str(f))
         return cls(types)
 

@@ -17,6 +17,8 @@ FLASH_MIN_GAIN = 25.0    # chi-square gain for the two extra parameters to count
 # within what the two tungsten tables' different laws leave in an even fit
 FLASH_MIN_SHARE = 0.01
 POOR_FIT_RMS = 3.0
+RATED_VOLTS = (0.5, 200.0)  # V: about 1 V battery filaments to 117 V (from memory)
+RATED_AMPS = (0.005, 30.0)  # A: from battery filaments to big rectifiers
 NORMALISE_LIMIT = 0.15   # heater voltage further than this from rated: not normalised
 
 
@@ -256,21 +258,22 @@ def analyze_file(path, ambient_c: float | None, type_name: str | None = None,
         raise GlowtraceError("give both --rated-volts and --rated-amps, or --type")
     if type_name and rated_v is not None:
         raise GlowtraceError("give either --type or --rated-volts/--rated-amps, not both")
-    for x in (rated_v, rated_a):
-        if x is not None and x <= 0:
-            raise GlowtraceError("rated volts and amps must be positive")
+    for name, x, (lo, hi) in (("--rated-volts", rated_v, RATED_VOLTS),
+                              ("--rated-amps", rated_a, RATED_AMPS)):
+        if x is not None and not (math.isfinite(x) and lo <= x <= hi):
+            raise GlowtraceError(f"{name} must be a heater rating between {lo:g} and {hi:g}")
+    if ambient_c is not None and not (math.isfinite(ambient_c) and -40 <= ambient_c <= 80):
+        raise GlowtraceError("--ambient-c must be a room temperature in C (-40..80)")
     tube_type = catalogue.load().get(type_name) if type_name else None
     curve, notes = read_curve(path)
     if ambient_c is None:
         ambient_c = 20.0
         notes.append("no --ambient-c given: 20 C assumed for the cold resistance")
-    elif not -40 <= ambient_c <= 80:
-        raise GlowtraceError("--ambient-c must be a room temperature in C (-40..80)")
     try:
         result = analyze_curve(curve, ambient_c, tube_type, rated_v, rated_a,
                                fit_model=fit_model)
-    except ValueError as e:
-        raise GlowtraceError(f"{path}: {e}") from None
+    except (ValueError, ArithmeticError) as e:
+        raise GlowtraceError(f"{path}: not analysed: {e}") from None
     result["warnings"] = notes + result["warnings"]
     if tube_type:
         result["type"] = tube_type.name

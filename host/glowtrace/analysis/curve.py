@@ -47,7 +47,8 @@ def from_capture(raw: RawCapture) -> dict:
 def stored_curves(store, uuid: str) -> dict:
     """Curves per section of any stored capture, tester's or imported."""
     if store.capture_source(uuid) == "import":
-        row, cols = store.load_imported(uuid)
+        from ..logbook.floatrows import MAX_POINTS
+        row, cols = store.load_imported(uuid, MAX_POINTS)
         return {row["section"]: Curve(cols["time_s"], cols["volts"], cols["amps"],
                                       cols.get("light"), label=f"{row['tube']} {row['section']}")}
     raw = store.load_capture(uuid)

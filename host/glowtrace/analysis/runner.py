@@ -7,7 +7,7 @@ from ..errors import GlowtraceError, StoreError
 from ..logbook.store import Store
 from . import ANALYSIS_VERSION
 from .analyze import analyze_capture, analyze_curve
-from .curve import Curve
+from .csvio import curve_from_rows
 
 
 def _max_cal_age() -> float:
@@ -83,12 +83,10 @@ def _analyze(store: Store, uuid: str, max_cal_age: float | None) -> dict:
 
 
 def _analyze_imported(store: Store, uuid: str) -> dict:
-    row, cols = store.load_imported(uuid)
-    notes: list[str] = []
-    tube_type = _tube_type(store, row["tube"], notes)
+    row, names, n, rows = store.imported_rows(uuid)
     sec = row["section"]
-    curve = Curve(cols["time_s"], cols["volts"], cols["amps"], cols.get("light"),
-                  label=f"{row['tube']} {sec}")
+    curve, notes = curve_from_rows(rows, n, names, f"{row['tube']} {sec}")
+    tube_type = _tube_type(store, row["tube"], notes)
     hist = store.history_cold_r20(row["tube"], sec, row["started_at"]) if row["tube"] else None
     try:
         m = analyze_curve(curve, row["ambient_c"], tube_type, history_cold_r20=hist)

@@ -6,6 +6,8 @@ from pathlib import Path
 from rich.text import Text
 
 from . import console as ui
+from .. import outfile
+from .common import number
 from .figures import figures_table, warnings
 from .tables import Col, fit
 
@@ -13,6 +15,8 @@ from .tables import Col, fit
 def cmd_analyze(args) -> int:
     from ..analysis.analyze import analyze_file
     from ..outputs import plots
+    if args.plot:  # checked before the work, not after
+        args.plot = str(outfile.check(args.plot, outfile.FIGURE, ".png"))
     curve, result = analyze_file(args.file, args.ambient_c, args.type, args.rated_volts,
                                  args.rated_amps, fit_model=not args.no_fit)
     name = Path(args.file).name
@@ -57,10 +61,10 @@ def register(sub, common) -> None:
     s = sub.add_parser("analyze", parents=[common],
                        help="measure a start-up curve from a CSV file (any instrument)")
     s.add_argument("file", help="CSV with columns time_s,volts,amps[,light]; # comments")
-    s.add_argument("--ambient-c", type=float, help="room temperature of the test, C")
+    s.add_argument("--ambient-c", type=number(-40, 80), help="room temperature of the test, C")
     s.add_argument("--type", help="tube type from the catalogue (sets the rating)")
-    s.add_argument("--rated-volts", type=float, help="rated heater volts (without --type)")
-    s.add_argument("--rated-amps", type=float, help="rated heater amps (without --type)")
+    s.add_argument("--rated-volts", type=number(0, above=True), help="rated heater volts (without --type)")
+    s.add_argument("--rated-amps", type=number(0, above=True), help="rated heater amps (without --type)")
     s.add_argument("--plot", metavar="FILE.png", help="also write a matplotlib figure")
     s.add_argument("--no-fit", action="store_true",
                    help="model-free figures only (no thermal model, no predictions)")

@@ -5,8 +5,9 @@ from pathlib import Path
 from rich.progress import BarColumn, Progress, TextColumn
 from rich.text import Text
 
+from .. import outfile
 from . import console as ui
-from .common import db_path
+from .common import db_path, number
 from .figures import capture_summary
 from .tables import Col, fit, hanging
 
@@ -42,6 +43,8 @@ def cmd_show(args) -> int:
     from ..analysis.curve import stored_curves
     from ..logbook.store import Store
     from ..outputs.captures import stored_summary
+    if args.plot:  # checked before the work, not after
+        args.plot = str(outfile.check(args.plot, outfile.FIGURE, ".png"))
     with Store(db_path(args), create=False) as store:
         uuid = store.find_uuid(args.uuid)
         s, analysis = stored_summary(store, uuid)
@@ -138,6 +141,6 @@ def register(sub, common) -> None:
                                    "when the logbook was locked, read-only or full), analyse "
                                    "them, and remove each file once its capture is stored.")
     s.add_argument("file", nargs="+", help="unsaved-capture file(s) named by `capture`")
-    s.add_argument("--busy-wait-s", type=float, default=60.0,
+    s.add_argument("--busy-wait-s", type=number(0, 86400), default=60.0,
                    help="how long to wait for a busy logbook (default 60)")
     s.set_defaults(func=cmd_recover)

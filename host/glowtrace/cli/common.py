@@ -1,6 +1,8 @@
 """What the commands share besides the consoles: the logbook path, the
 confirmation of a deletion, the safety note."""
 
+import argparse
+import math
 import sys
 from pathlib import Path
 
@@ -24,3 +26,23 @@ def confirm(args, what: str, token: str) -> None:
     answer = input(f"This deletes {what}. Type {token!r} to confirm: ")
     if answer.strip() != token:
         raise GlowtraceError("not confirmed: nothing deleted")
+
+
+def number(lo: float | None = None, hi: float | None = None, above: bool = False):
+    """An argparse type: a finite number (never nan or inf) in [lo, hi],
+    or above lo when `above`; argparse turns the refusal into one line."""
+    def parse(text: str) -> float:
+        try:
+            x = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        if not math.isfinite(x):
+            raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
+        if lo is not None and (x < lo or (above and x == lo)):
+            raise argparse.ArgumentTypeError(
+                f"{text} is too small: it must be {'more than' if above else 'at least'} {lo:g}")
+        if hi is not None and x > hi:
+            raise argparse.ArgumentTypeError(f"{text} is too large: it must be at most {hi:g}")
+        return x
+    parse.__name__ = "number"  # argparse names the type in its messages
+    return parse

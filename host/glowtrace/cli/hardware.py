@@ -7,7 +7,7 @@ from ..errors import GlowtraceError
 from ..tester.driver import connect
 from ..tester.sim import with_load
 from . import console as ui
-from .common import db_path
+from .common import db_path, number
 from .figures import gains_table
 
 
@@ -126,18 +126,18 @@ def register(sub, common) -> None:
     s = sub.add_parser("calibrate", parents=[common],
                        help="calibrate the tester with reference resistors")
     s.add_argument("--port", help="serial device or glowsim:// URL (default: found on USB)")
-    s.add_argument("--supply-v", type=float, required=True,
+    s.add_argument("--supply-v", type=number(0, 60, above=True), required=True,
                    help="the heater supply at the empty socket, as your meter reads it")
-    s.add_argument("--meter-tol", type=float, default=0.5, help="meter tolerance, %% (0.5)")
-    s.add_argument("--ref", type=float, default=4.7,
+    s.add_argument("--meter-tol", type=number(0, 50, above=True), default=0.5, help="meter tolerance, %% (0.5)")
+    s.add_argument("--ref", type=number(0, 1e6, above=True), default=4.7,
                    help="the reference resistor's value, ohm (4.7)")
-    s.add_argument("--ref-tol", type=float, default=1.0, help="its tolerance, %% (1)")
+    s.add_argument("--ref-tol", type=number(0, 50, above=True), default=1.0, help="its tolerance, %% (1)")
     s.add_argument("--yes", action="store_true", help="do not wait for Enter between steps")
     s.set_defaults(func=cmd_calibrate)
 
     s = sub.add_parser("selftest", parents=[common], help="the tester checks itself")
     s.add_argument("--port")
-    s.add_argument("--load-ohm", type=float, default=4.7,
+    s.add_argument("--load-ohm", type=number(0, 1e6, above=True), default=4.7,
                    help="the dummy load fitted in each section, ohm (4.7)")
     s.add_argument("--yes", action="store_true", help="do not wait for Enter")
     s.set_defaults(func=cmd_selftest)

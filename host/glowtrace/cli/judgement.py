@@ -5,7 +5,7 @@ from pathlib import Path
 
 from rich.text import Text
 
-from .. import config
+from .. import config, outfile
 from ..logbook.store import Store
 from . import console as ui
 from .common import db_path
@@ -72,6 +72,8 @@ def cmd_stock(args) -> int:
     from ..judgement import scoring
     from ..outputs import stock
     cfg = config.load(args.config)
+    if args.csv:  # checked before the work, not after
+        args.csv = str(outfile.check(args.csv, (".csv",), ".csv"))
     with Store(db_path(args), create=False) as store:
         rows = stock.stock_rows(scoring.assess_fleet(store, cfg, args.type, args.owner))
     if args.csv:
@@ -98,7 +100,10 @@ def cmd_stock(args) -> int:
 def cmd_report(args) -> int:
     from ..outputs.report import write_report
     cfg = config.load(args.config)
-    path = Path(args.output or f"{args.label}-heater-report.html")
+    # a name made from the label stays a plain file name here, whatever the
+    # label holds ("KS/0117", "../x")
+    path = outfile.check(args.output or f"{outfile.safe_name(args.label)}-heater-report.html",
+                         (".html", ".htm"), ".html")
     with Store(db_path(args), create=False) as store:
         result = write_report(store, args.label, cfg, path)
     ui.emit(args, {"report": str(path), "status": result["status"], "grade": result["grade"]},

@@ -5,7 +5,7 @@ from rich.text import Text
 from ..logbook import records
 from ..logbook.store import Store
 from . import console as ui
-from .common import confirm, db_path
+from .common import confirm, db_path, number
 from .figures import warnings
 from .tables import Col, fit, pairs
 
@@ -187,7 +187,8 @@ def register(sub, common) -> None:
     s.add_argument("--type", help="tube type (needed for a new tube)")
     s.add_argument("--section", required=True, choices=["A", "B"])
     s.add_argument("--at", required=True, help="when it was recorded, ISO 8601")
-    s.add_argument("--ambient-c", required=True, type=float, help="room temperature, C")
+    s.add_argument("--ambient-c", required=True, type=number(-40, 80),
+                   help="room temperature, C")
     s.set_defaults(func=cmd_import)
 
     s = sub.add_parser("export", parents=[common], help="copy the whole logbook to a file")

@@ -6,7 +6,7 @@ import time
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
 from . import console as ui
-from .common import db_path
+from .common import db_path, number
 from .figures import capture_summary
 from .tables import Col, fit
 
@@ -130,6 +130,7 @@ def cmd_capture(args) -> int:
 
 
 METAVARS = {float: "X", int: "N", str: "TEXT"}
+MAX_CAPTURE_S = 300.0  # the reference tester's on-time limit (schematics/frontend.json)
 
 
 def register(sub, common) -> None:
@@ -168,12 +169,13 @@ def register(sub, common) -> None:
     s.add_argument("--range", choices=["low", "high"],
                    help="current range: low to 3.3 A, high to 33 A (default: high when the "
                         "type's inrush can reach the low range's trip, else low)")
-    s.add_argument("--max-s", type=float, default=60.0, help="longest capture, s (default 60)")
-    s.add_argument("--settle-band", type=float, default=0.005,
+    s.add_argument("--max-s", type=number(1, MAX_CAPTURE_S), default=60.0,
+                   help=f"longest capture, s (1 to {MAX_CAPTURE_S:g}; default 60)")
+    s.add_argument("--settle-band", type=number(0, 0.49, above=True), default=0.005,
                    help="relative band for the adaptive end (default 0.005)")
-    s.add_argument("--settle-hold-s", type=float, default=2.0,
+    s.add_argument("--settle-hold-s", type=number(0, 60, above=True), default=2.0,
                    help="time the current must stay in the band, s (default 2)")
-    s.add_argument("--busy-wait-s", type=float, default=60.0,
+    s.add_argument("--busy-wait-s", type=number(0, 86400), default=60.0,
                    help="how long to wait for a logbook another program is using before "
                         "the capture is kept in a file for `glowtrace recover` (default 60)")
     s.set_defaults(func=cmd_capture)

@@ -337,40 +337,67 @@ class Store:
         return raw.uuid
 
     def save_imported(self, uuid: str, tube: str, section: str, started_at: str,
-                      ambient_c: float, columns: dict, source_name: str) -> str:
-        """A curve recorded by another instrument, kept exactly as read
-        (float64 columns, LZMA): time_s, volts, amps and optionally light."""
-        names = list(columns)
-        data = np.column_stack([np.asarray(columns[n], "<f8") for n in names])
+                      ambient_c: float, spool, names: list, n_rows: int,
+                      source_name: str) -> str:
+        """A curve recorded by another instrument, kept exactly as read:
+        `spool` is a binary file of float64 rows (columns `names`: time_s,
+        volts, amps and optionally light). It is packed (LZMA) into another
+        temporary file before the transaction, and written into the logbook
+        a chunk at a time: a short transaction in bounded memory."""
+        import tempfile
+
+        from . import floatrows
         row = {"uuid": uuid, "tube": tube, "section": section, "started_at": started_at,
                "stored_at": _now(), "complete": 1, "incomplete_reason": None,
                "end_reason": "imported", "trip_cause": None, "board_id": None,
                "firmware": None, "port": source_name, "ambient_c": ambient_c,
-               "n_sets": len(data), "n_blocks": 0, "params": json.dumps({"section": section}),
+               "n_sets": n_rows, "n_blocks": 0, "params": json.dumps({"section": section}),
                "hello": json.dumps({"source": source_name}), "phases": "[]",
                "end_record": "null", "trip_record": "null", "link": "{}", "source": "import"}
-        packed = lzma.compress(data.tobytes())  # before the transaction, not inside it
-        try:
+        with tempfile.TemporaryFile() as packed:
+            spool.seek(0)
+            size = floatrows.compress(spool, packed)  # before the transaction
+            packed.seek(0)
             with self.transaction() as conn:
                 _insert(conn, "captures", row)
-                _insert(conn, "capture_samples", {
-                    "capture_uuid": uuid, "encoding": IMPORT_ENCODING,
-                    "channels": json.dumps(names), "n_sets": len(data), "blocks": b"",
-                    "samples": packed})
-        except sqlite3.DatabaseError as e:
-            raise self._error(f"curve {uuid} not stored in", e) from None
+                cur = conn.execute(
+                    "INSERT INTO capture_samples (capture_uuid, encoding, channels, n_sets, "
+                    "blocks, samples) VALUES (?, ?, ?, ?, ?, zeroblob(?))",
+                    [uuid, IMPORT_ENCODING, json.dumps(names), n_rows, b"", size])
+                with conn.blobopen("capture_samples", "samples", cur.lastrowid) as blob:
+                    for chunk in floatrows.read_chunks(packed):
+                        blob.write(chunk)
         return uuid
 
     def capture_source(self, uuid: str) -> str:
         return self.db.execute("SELECT source FROM captures WHERE uuid = ?", [uuid]).fetchone()[0]
 
-    def load_imported(self, uuid: str) -> tuple[dict, dict]:
-        """(capture row, columns by name) of an imported curve."""
+    def imported_rows(self, uuid: str):
+        """(capture row, column names, row count, an iterator of float64
+        row chunks) of an imported curve, read from the logbook a chunk at a
+        time."""
+        from . import floatrows
         c = self.db["captures"].get(uuid)
-        s = self.db["capture_samples"].get(uuid)
-        names = json.loads(s["channels"])
-        data = np.frombuffer(lzma.decompress(s["samples"]), "<f8").reshape(-1, len(names))
-        return c, {n: data[:, k] for k, n in enumerate(names)}
+        rowid, names, n = self.db.execute(
+            "SELECT rowid, channels, n_sets FROM capture_samples WHERE capture_uuid = ?",
+            [uuid]).fetchone()
+        names = json.loads(names)
+
+        def packed():
+            with self.db.conn.blobopen("capture_samples", "samples", rowid,
+                                       readonly=True) as blob:
+                while chunk := blob.read(1 << 20):
+                    yield chunk
+        return c, names, n, floatrows.rows_from_bytes(floatrows.decompress(packed()),
+                                                      len(names))
+
+    def load_imported(self, uuid: str, max_points: int | None = None) -> tuple[dict, dict]:
+        """(capture row, columns by name) of an imported curve: every row, or
+        at most max_points means of consecutive rows (floatrows.reduced)."""
+        from . import floatrows
+        c, names, n, rows = self.imported_rows(uuid)
+        data, _ = floatrows.reduced(rows, n, len(names), max_points)
+        return c, {name: data[:, k] for k, name in enumerate(names)}
 
     def find_uuid(self, prefix: str) -> str:
         # a prefix is matched as text: % and _ in it are not wildcards

@@ -6,7 +6,11 @@ metric trends as terminal charts.
 Terminal plots come back as text with ANSI colour; the command line decides
 whether the colour reaches the screen."""
 
+from pathlib import Path
+
 import numpy as np
+
+from .. import outfile
 
 from ..analysis.curve import Curve
 
@@ -131,5 +135,9 @@ def figure(c: Curve, analysis: dict, path, title: str = "") -> None:
     sub = f"flash index {fi:.3f}" if fi is not None else ""
     fig.suptitle((title + ("  -  " + sub if sub else "")).strip(" -"))
     fig.tight_layout()
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
+    path = Path(path)
+    try:
+        with outfile.replacing(path, "wb") as f:
+            fig.savefig(f, dpi=120, format=path.suffix.lstrip(".").lower() or "png")
+    finally:
+        plt.close(fig)

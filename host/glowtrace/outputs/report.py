@@ -7,8 +7,11 @@ import base64
 import html
 import io
 from datetime import datetime, timezone
+from pathlib import Path
 
 import numpy as np
+
+from .. import outfile
 
 from ..analysis.curve import stored_curves
 from ..judgement.scoring import LABELS, _parse_at, history
@@ -136,6 +139,6 @@ def write_report(store: Store, label: str, cfg: dict, path) -> dict:
     parts.append("<p class='note'>How the figures are measured: docs/ANALYSIS.md in "
                  "glowtrace. Cold resistance is compared at 20 C, so room temperature does "
                  f"not read as drift.</p><p class='note'>{e(CAUTION)}</p></body></html>")
-    with open(path, "w", encoding="utf-8") as fh:
+    with outfile.replacing(Path(path), "w", encoding="utf-8") as fh:
         fh.write("\n".join(parts))
     return result

@@ -4,6 +4,8 @@ assessments (JSON), flattened to one line per section for a spreadsheet (CSV).""
 import csv
 from pathlib import Path
 
+from .. import outfile
+
 
 STOCK_FIELDS = ["tube", "type", "owner", "status", "grade", "sections", "hot_current_a",
                 "rated_hot_current_a",
@@ -35,7 +37,7 @@ def stock_rows(assessments: list[dict]) -> list[dict]:
 
 def write_stock_csv(rows: list[dict], path: str | Path) -> None:
     """One line per tube section, flat columns for a spreadsheet."""
-    with open(path, "w", newline="") as f:
+    with outfile.replacing(Path(path), "w", newline="") as f:
         w = csv.writer(f)
         w.writerow(["tube", "type", "owner", "section", "status", "grade", "hot_current_a",
                     "rated_hot_current_a",

@@ -1,15 +1,20 @@
 """`glowtrace import`: a curve recorded elsewhere stored as a capture of a
 tube section, then analysed like the tester's own."""
 
+import math
+import tempfile
 import uuid as uuidlib
 from datetime import datetime, timedelta, timezone
 
 from .. import catalogue
 from ..analysis.runner import analyze_stored
-from ..analysis.csvio import read_curve
+from ..analysis.csvio import spool_curve
 from ..errors import GlowtraceError
 from ..logbook.records import ensure_tube, get_tube, sections_of
 from ..logbook.store import Store
+
+
+EARLIEST_YEAR = 1900  # older dates are typing errors (and year 1 overflows in UTC)
 
 
 def parse_when(text: str) -> str:
@@ -22,6 +27,9 @@ def parse_when(text: str) -> str:
                              "(for example 2026-03-14T09:30:00+01:00)") from None
     if d.tzinfo is None:
         d = d.replace(tzinfo=timezone.utc)
+    if d.year < EARLIEST_YEAR:
+        raise GlowtraceError(f"--at {text!r} is before {EARLIEST_YEAR}: give the date of "
+                             "the recording")
     d = d.astimezone(timezone.utc)
     if d > datetime.now(timezone.utc) + timedelta(minutes=5):
         raise GlowtraceError(f"--at {text!r} is in the future")
@@ -31,10 +39,15 @@ def parse_when(text: str) -> str:
 def import_curve(store: Store, path: str, tube: str, type_name: str | None, section: str,
                  at: str, ambient_c: float) -> tuple[str, dict, list[str]]:
     """Store and analyse one curve; returns (uuid, analysis, file warnings).
-    Everything is checked before anything is written."""
-    curve, warnings = read_curve(path)
+    Everything is checked before anything is written; the file is read as
+    a stream (any length, bounded memory)."""
+    with tempfile.TemporaryFile() as spool:
+        return _import(store, path, spool, tube, type_name, section, at, ambient_c)
+
+
+def _import(store, path, spool, tube, type_name, section, at, ambient_c):
     when = parse_when(at)
-    if not -40 <= ambient_c <= 80:
+    if not (math.isfinite(ambient_c) and -40 <= ambient_c <= 80):
         raise GlowtraceError("--ambient-c must be a room temperature in C (-40..80)")
     existing = get_tube(store, tube)
     if type_name:
@@ -53,10 +66,9 @@ def import_curve(store: Store, path: str, tube: str, type_name: str | None, sect
     if dup:
         raise GlowtraceError(f"tube {tube!r} section {section} already has a capture at "
                              f"{when} ({dup[0][:8]}): imported before?")
+    info = spool_curve(path, spool)  # the whole file checked before anything is stored
     ensure_tube(store, tube, type_name)
-    cols = {"time_s": curve.t, "volts": curve.v, "amps": curve.i}
-    if curve.light is not None:
-        cols["light"] = curve.light
     uuid = str(uuidlib.uuid4())
-    store.save_imported(uuid, tube, section, when, ambient_c, cols, str(path))
-    return uuid, analyze_stored(store, uuid), warnings
+    store.save_imported(uuid, tube, section, when, ambient_c, spool, info.names, info.n_rows,
+                        str(path))
+    return uuid, analyze_stored(store, uuid), info.warnings
