@@ -5,7 +5,6 @@ from the type unless given."""
 
 import json
 
-import pytest
 
 from glowtrace import catalogue, config, paths
 from glowtrace.cli import main

@@ -115,7 +115,10 @@ def _rows(path: Path):
                     if "\x00" in line:
                         raise CurveFileError(f"{path}, line {n}: not a text file")
                     yield n, next(csv.reader([line]))
-        except (UnicodeDecodeError, csv.Error) as e:
+        except UnicodeDecodeError as e:
+            raise CurveFileError(f"{path}: not UTF-8 text (a binary file, or text in another "
+                                 f"encoding: {e.reason} at byte {e.start})") from None
+        except csv.Error as e:
             raise CurveFileError(f"{path}: cannot read it as CSV text ({e})") from None
 
 

@@ -11,10 +11,8 @@ from .csvio import curve_from_rows
 
 
 def _max_cal_age() -> float:
-    try:
-        return float(config.load()["calibration"]["max_age_days"])
-    except GlowtraceError:
-        return 180.0
+    # a broken settings file is the user's to fix: said, not silently replaced
+    return float(config.load()["calibration"]["max_age_days"])
 
 
 def _tube_type(store: Store, label: str | None, notes: list):
@@ -22,7 +20,7 @@ def _tube_type(store: Store, label: str | None, notes: list):
     if tube and tube.get("type"):
         try:
             return catalogue.load().get(tube["type"])
-        except GlowtraceError as e:
+        except catalogue.UnknownType as e:
             notes.append(f"type not in the catalogue, ratings unknown: {e}")
     return None
 
@@ -42,6 +40,8 @@ def analyze_stored(store: Store, uuid: str, max_cal_age: float | None = None) ->
     A capture that cannot be analysed (a record lost on the link, a curve no
     heater makes, a fault in the analysis itself) is stored as not analysed,
     with the reason: one bad capture never blocks the rest of the logbook."""
+    if max_cal_age is None:  # outside the try: the settings are not the capture's fault
+        max_cal_age = _max_cal_age()
     try:
         return _analyze(store, uuid, max_cal_age)
     except StoreError:
@@ -71,8 +71,6 @@ def _analyze(store: Store, uuid: str, max_cal_age: float | None) -> dict:
         result = analyze_capture(raw, tube_type, history)
     if not raw.complete:
         notes.append(f"capture incomplete ({raw.incomplete_reason}): figures may be partial")
-    if max_cal_age is None:
-        max_cal_age = _max_cal_age()
     stale = age_warning(raw.hello.get("calibration"), raw.started_at, max_cal_age)
     if stale:
         notes.append(stale)

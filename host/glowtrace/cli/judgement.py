@@ -1,7 +1,6 @@
 """Commands that judge: `history` (one tube), `stock` (every tube, for
 dealers) and `report` (a page for the customer)."""
 
-from pathlib import Path
 
 from rich.text import Text
 

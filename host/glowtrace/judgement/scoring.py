@@ -16,7 +16,6 @@ from .. import catalogue
 from ..analysis import ANALYSIS_VERSION
 from . import charts
 from ..config import METRICS
-from ..errors import GlowtraceError
 from ..logbook.store import Store
 
 # the scored figures (config.METRICS): the tube's own, at its rated voltage
@@ -324,7 +323,7 @@ def assess(tube: dict, sections: dict, cfg: dict, baselines: dict,
     if tube.get("type"):
         try:
             tube_type = catalogue.load().get(tube["type"])
-        except GlowtraceError:
+        except catalogue.UnknownType:  # a broken catalogue file is an error, said
             tube_type = None
     # the sections measured so far; a tube never captured shows its type's
     wanted = tuple(sorted(sections)) or (

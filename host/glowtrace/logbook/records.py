@@ -27,24 +27,31 @@ def sections_of(type_name: str | None) -> tuple[str, ...]:
         return ("A", "B")
     try:
         t = catalogue.load().get(type_name)
-    except GlowtraceError:
+    except catalogue.UnknownType:
         return ("A", "B")
     return ("A", "B") if t.centre_tapped else ("A",)
 
 
+def _text(text: str, what: str) -> str:
+    """A label or a name as typed, trimmed: 1 to 80 printable characters.
+    Path separators are allowed ("KS/0117" is a fine label): where a file is
+    named after a label, outfile.safe_name makes it a plain file name."""
+    text = (text or "").strip()
+    if not text or len(text) > 80:
+        raise RecordError(f"{what} must be 1 to 80 characters")
+    if not text.isprintable():
+        raise RecordError(f"{what} {text!r} holds a control character (a tab, a new line?)")
+    return text
+
+
 def _label(label: str) -> str:
-    label = (label or "").strip()
-    if not label or len(label) > 80:
-        raise RecordError("a tube label must be 1 to 80 characters")
-    return label
+    return _text(label, "a tube label")
 
 
 # owners -------------------------------------------------------------------
 def add_owner(store: Store, name: str, contact: str | None = None,
               notes: str | None = None) -> dict:
-    name = (name or "").strip()
-    if not name:
-        raise RecordError("an owner needs a name")
+    name = _text(name, "an owner's name")
     if get_owner(store, name):
         raise RecordError(f"owner {name!r} exists already")
     row = {"name": name, "contact": contact, "notes": notes, "created_at": _now()}
@@ -80,9 +87,7 @@ def _rows(store: Store, sql: str, args=()) -> list[dict]:
 
 def rename_owner(store: Store, old: str, new: str) -> None:
     require_owner(store, old)
-    new = (new or "").strip()
-    if not new:
-        raise RecordError("an owner needs a name")
+    new = _text(new, "an owner's name")
     if get_owner(store, new):
         raise RecordError(f"owner {new!r} exists already")
     with store.transaction() as conn:

@@ -11,9 +11,7 @@ from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
 
-import lzma
 
-import numpy as np
 import sqlite_utils
 
 from . import samples_codec
@@ -232,6 +230,7 @@ class Store:
         """All or nothing: BEGIN IMMEDIATE ... COMMIT, ROLLBACK on any error
         (a failed COMMIT too, so no lock is left behind)."""
         conn = self.db.conn
+        self.check_writable()  # SQLite would open it read-only and fail late
         try:
             conn.execute("BEGIN IMMEDIATE")
         except sqlite3.DatabaseError as e:
