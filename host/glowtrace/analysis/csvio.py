@@ -187,17 +187,16 @@ def spool_curve(path: str | Path, spool) -> CurveFile:
 
 
 def curve_from_rows(rows, n_rows: int, names: list, label: str,
-                    max_points: int | None = floatrows.MAX_POINTS) -> tuple[Curve, list]:
-    """The Curve the analysis reads (reduced to at most max_points), and a
-    note when it was reduced."""
-    a, k = floatrows.reduced(rows, n_rows, len(names), max_points)
+                    max_points: int | None = None) -> tuple[Curve, list]:
+    """The Curve the analysis reads (reduced to at most max_points, default
+    floatrows.MAX_POINTS), and a note when it was reduced."""
+    a, k = floatrows.reduced(rows, n_rows, len(names), max_points or floatrows.MAX_POINTS)
     col = {n: a[:, j] for j, n in enumerate(names)}
     notes = [f"{n_rows} rows analysed as {len(a)} means of {k} consecutive rows"] if k > 1 else []
     return Curve(col["time_s"], col["volts"], col["amps"], col.get("light"), label=label), notes
 
 
-def read_curve(path: str | Path,
-               max_points: int | None = floatrows.MAX_POINTS) -> tuple[Curve, list[str]]:
+def read_curve(path: str | Path, max_points: int | None = None) -> tuple[Curve, list[str]]:
     """The curve and a list of warnings about the file (skipped rows)."""
     with tempfile.TemporaryFile() as spool:
         info = spool_curve(path, spool)

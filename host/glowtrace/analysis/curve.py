@@ -38,6 +38,8 @@ def from_capture(raw: RawCapture) -> dict:
     clip = (counts - 1) / counts * fe["adc"]["vref_v"] * fe["current_ranges"][rng]["amps_per_volt"]
     out = {}
     for sec in raw.section:
+        if sec not in c.amps:  # its channel unknown (the start record lost)
+            continue
         i = c.amps[sec]
         out[sec] = Curve(c.t_s, c.volts - i * r_path, i, c.light, clip_a=0.98 * clip,
                          label=f"{raw.tube} {sec}")
@@ -47,8 +49,8 @@ def from_capture(raw: RawCapture) -> dict:
 def stored_curves(store, uuid: str) -> dict:
     """Curves per section of any stored capture, tester's or imported."""
     if store.capture_source(uuid) == "import":
-        from ..logbook.floatrows import MAX_POINTS
-        row, cols = store.load_imported(uuid, MAX_POINTS)
+        from ..logbook import floatrows
+        row, cols = store.load_imported(uuid, floatrows.MAX_POINTS)
         return {row["section"]: Curve(cols["time_s"], cols["volts"], cols["amps"],
                                       cols.get("light"), label=f"{row['tube']} {row['section']}")}
     raw = store.load_capture(uuid)

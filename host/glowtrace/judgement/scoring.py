@@ -479,9 +479,13 @@ def history(store: Store, label: str, cfg: dict) -> dict:
             m = dict(analysis.get("sections", {}).get(sec, {}))
             m.pop("thermal_model", None)
             row = excluded.get((uuid, sec), {})
+            left_out = row.get("excluded")
+            if not row:  # no figures to score: say why (not analysed, or not yet)
+                left_out = (analysis.get("warnings") or ["not analysed yet: run "
+                                                         "`glowtrace reanalyze`"])[0]
             caps.append({"uuid": uuid, "at": at, "section": sec, "source": source,
                          "complete": bool(complete), "incomplete_reason": why,
-                         "scored": bool(row.get("scored")), "excluded": row.get("excluded"),
+                         "scored": bool(row.get("scored")), "excluded": left_out,
                          **m, "inrush_20c": row.get("inrush_20c")})
     result["captures"] = caps
     return result

@@ -90,9 +90,11 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
                 raw = e.raw
                 raw.incomplete_reason = e.reason
             cause = raw.trip_cause
-            if cause in BENCH_TRIPS and raw.incomplete_reason is None:
-                # the curve was cut short for a reason that is not the tube
-                raw.incomplete_reason = BENCH_TRIPS[cause]
+            if cause in BENCH_TRIPS:
+                # the curve was cut short for a reason that is not the tube;
+                # what the link saw of it comes after
+                raw.incomplete_reason = BENCH_TRIPS[cause] + (
+                    f"; then {raw.incomplete_reason}" if raw.incomplete_reason else "")
             if started_at:
                 raw.started_at = started_at
             if raw.incomplete_reason == "interrupted by the user":
