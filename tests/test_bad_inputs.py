@@ -336,17 +336,14 @@ def test_report_named_after_a_label_stays_in_the_folder(tmp_path, monkeypatch, c
     """A label with separators ("KS/0117", "../x") makes a plain file name in
     the working folder, never a path elsewhere."""
     db = tmp_path / "b.db"
-    good = _curve_csv(tmp_path / "good.csv")
     work = tmp_path / "work"
     work.mkdir()
     monkeypatch.chdir(work)
     for label in ("KS/0117", "../x", "/etc/y", ".hidden"):
-        assert main(["import", str(good), "--tube", label, "--type", "12AX7", "--section",
-                     "A", "--at", "2026-03-01T10:00", "--ambient-c", "21",
-                     "--db", str(db)]) == 0
+        assert main(["tube", "add", label, "--type", "12AX7", "--db", str(db)]) == 0
         rc, out, err = _run(["report", label, "--db", str(db)], capsys)
         assert rc == 0, err
     made = sorted(p.name for p in work.iterdir())
     assert made == ["KS_0117-heater-report.html", "_etc_y-heater-report.html",
                     "_x-heater-report.html", "hidden-heater-report.html"]
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["b.db", "good.csv", "work"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["b.db", "work"]
