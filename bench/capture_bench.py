@@ -16,6 +16,7 @@ import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "host"))
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
 
 from glowtrace.tester import protocol  # noqa: E402
 from glowtrace.tester.raw import RawCapture  # noqa: E402
@@ -23,27 +24,17 @@ from glowtrace.tester.link import Link  # noqa: E402
 from glowtrace.logbook.store import Store  # noqa: E402
 from glowtrace.tester.driver import Tester  # noqa: E402
 from glowtrace.tester.transport import open_port  # noqa: E402
+from simhelp import WrappedPort  # noqa: E402
 
 URL = "glowsim://?tube=12AX7&flash_b=0.1"
 
 
-class RecordingPort:
+class RecordingPort(WrappedPort):
     """Wraps a serial port and keeps every byte read from it."""
 
     def __init__(self, port):
-        self.port = port
+        super().__init__(port)
         self.record = bytearray()
-
-    def __getattr__(self, name):
-        return getattr(self.port, name)
-
-    @property
-    def timeout(self):
-        return self.port.timeout
-
-    @timeout.setter
-    def timeout(self, v):
-        self.port.timeout = v
 
     def read(self, n):
         data = self.port.read(n)

@@ -35,6 +35,7 @@ from glowtrace.tester.driver import CaptureInterrupted, Tester  # noqa: E402
 from glowtrace.tester.link import Link  # noqa: E402
 from glowtrace.tester.transport import open_port  # noqa: E402
 from linkfuzz import FuzzCounts, run_host  # noqa: E402
+from simhelp import WrappedPort  # noqa: E402
 
 BATCH = 2000
 FW_BATCH = 5000
@@ -70,7 +71,7 @@ def fw_fuzz(frames: int) -> dict:
     return total
 
 
-class FaultyPort:
+class FaultyPort(WrappedPort):
     """A serial port whose incoming bytes are damaged: each byte dropped,
     flipped or followed by a stray byte with the given probabilities; or the
     host stalls (reads nothing, sends nothing) once for `stall_s`; or the
@@ -78,23 +79,13 @@ class FaultyPort:
 
     def __init__(self, port, seed, drop=0.0, flip=0.0, insert=0.0, stall_s=0.0,
                  stall_at_s=0.5, vanish_s=None):
-        self.port, self.r = port, random.Random(seed)
+        super().__init__(port)
+        self.r = random.Random(seed)
         self.drop, self.flip, self.insert = drop, flip, insert
         self.stall_s, self.stall_at_s, self.vanish_s = stall_s, stall_at_s, vanish_s
         self.t0 = None
         self.damaged = 0
         self.armed = False  # faults start with the capture, after the handshake
-
-    def __getattr__(self, name):
-        return getattr(self.port, name)
-
-    @property
-    def timeout(self):
-        return self.port.timeout
-
-    @timeout.setter
-    def timeout(self, v):
-        self.port.timeout = v
 
     def _clock(self):
         if not self.armed:
@@ -188,22 +179,16 @@ def main():
     ap.add_argument("--captures", type=int, default=4, help="captures per link fault")
     args = ap.parse_args()
 
-    t0 = time.perf_counter()
-    h = host_fuzz(args.host_frames)
-    dt = time.perf_counter() - t0
-    print(f"host decoder: {h.frames:,} frames ({h.mutated:,} damaged) in {dt:.0f} s: "
-          f"{h.accepted:,} accepted, {h.bad_frames:,} counted bad, "
-          f"{h.false_accepts} false accepts, {h.intact_lost} intact frames lost, "
-          f"{h.crashes} crashes {h.errors[:3] or ''}")
-
-    t0 = time.perf_counter()
-    f = fw_fuzz(args.fw_frames)
-    dt = time.perf_counter() - t0
-    print(f"firmware decoder (micropython): {f.get('frames', 0):,} frames "
-          f"({f.get('mutated', 0):,} damaged) in {dt:.0f} s: {f.get('accepted', 0):,} accepted, "
-          f"{f.get('bad_frames', 0):,} counted bad, {f.get('false_accepts', 0)} false accepts, "
-          f"{f.get('intact_lost', 0)} intact frames lost, {f.get('crashes', 0)} crashes "
-          f"{f.get('errors', '')}")
+    for name, run, n in (("host decoder", host_fuzz, args.host_frames),
+                         ("firmware decoder (micropython)", fw_fuzz, args.fw_frames)):
+        t0 = time.perf_counter()
+        c = run(n)
+        c = vars(c) if isinstance(c, FuzzCounts) else c
+        print(f"{name}: {c.get('frames', 0):,} frames ({c.get('mutated', 0):,} damaged) in "
+              f"{time.perf_counter() - t0:.0f} s: {c.get('accepted', 0):,} accepted, "
+              f"{c.get('bad_frames', 0):,} counted bad, {c.get('false_accepts', 0)} false "
+              f"accepts, {c.get('intact_lost', 0)} intact frames lost, "
+              f"{c.get('crashes', 0)} crashes {c.get('errors') or ''}")
 
     print(f"captures on the simulated tester through a damaged link ({args.captures} each):")
     for name, c in capture_faults(args.captures).items():

@@ -264,3 +264,13 @@ def test_a_figure_without_a_suffix_is_written_as_png_and_named(tmp_path, capsys)
     assert rc == 0
     assert (tmp_path / "fig.png").stat().st_size > 1000
     assert f"wrote {tmp_path / 'fig.png'}" in " ".join(err.split())
+
+
+def test_a_stale_handshake_frame_lost_is_not_a_hole_in_the_capture():
+    """Frames lost before the capture's acknowledgement (a stale reply to the
+    handshake) are not frames of the capture: it stays whole."""
+    from glowtrace.tester.driver import connect
+    with connect(sim_url(tube="12AX7", seed=7)) as t:
+        t.link.expect_seq = (t.link.expect_seq - 3) & 0xFFFF  # as if 3 frames went missing
+        raw = t.capture("S1", "A", {"max_s": 5, "range": "low"})
+    assert raw.complete and raw.link["lost_frames"] == 0
