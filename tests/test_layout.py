@@ -10,7 +10,8 @@ from pathlib import Path
 import pytest
 
 PACKAGE = Path(__file__).resolve().parent.parent / "host" / "glowtrace"
-FLOW = ["tester", "logbook", "analysis", "judgement", "outputs", "procedures", "cli"]
+FLOW = ["tester", "logbook", "analysis", "circuits", "judgement", "outputs", "procedures",
+        "cli"]
 SHARED = {"__init__", "paths", "errors", "catalogue", "config", "outfile"}
 
 

@@ -141,3 +141,51 @@ def figure(c: Curve, analysis: dict, path, title: str = "") -> None:
             fig.savefig(f, dpi=120, format=path.suffix.lstrip(".").lower() or "png")
     finally:
         plt.close(fig)
+
+
+def circuit_terminal_plot(run, plain, width: int = 100, height: int = 18) -> str:
+    """Supply current after switch-on: the design and a plain switch-on."""
+    import plotext as plt
+    plt.clear_figure()
+    plt.plotsize(width, height)
+    plt.xscale("log")
+    plt.title("supply current after switch-on")
+    plt.xlabel("time after switch-on, s (log)")
+    for r, label in ((plain, "plain switch-on, A"), (run, "this design, A")):
+        k = r.t > 0
+        plt.plot(r.t[k].tolist(), r.current[k].tolist(), label=label, marker="braille")
+    plt.theme("clear")
+    return plt.build()
+
+
+def circuit_figure(run, plain, path, title: str = "") -> None:
+    """Current, each heater's voltage and its exposed share's temperature,
+    for the design (solid) and a plain switch-on (dotted)."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    fig, ax = plt.subplots(3, 1, sharex=True, figsize=(8, 8.4))
+    for r, style, what in ((run, "-", "design"), (plain, ":", "plain")):
+        k = r.t > 0
+        ax[0].plot(r.t[k], r.current[k], style, lw=1.2, color="C0", label=what)
+        for j, name in enumerate(r.names):
+            ax[1].plot(r.t[k], r.heater_v[j, k], style, lw=1.2, color=f"C{j + 1}",
+                       label=f"{name} ({what})")
+            ax[2].plot(r.t[k], r.exposed_k[j, k], style, lw=1.2, color=f"C{j + 1}")
+    ax[0].set_ylabel("supply current, A")
+    ax[1].set_ylabel("heater volts, V")
+    ax[2].set_ylabel("exposed share, K")
+    ax[-1].set_xscale("log")
+    ax[-1].set_xlabel("time after switch-on, s")
+    ax[0].legend(fontsize=8)
+    ax[1].legend(fontsize=7)
+    for a in ax:
+        a.grid(True, which="both", alpha=0.25)
+    fig.suptitle(title)
+    fig.tight_layout()
+    path = Path(path)
+    try:
+        with outfile.replacing(path, "wb") as f:
+            fig.savefig(f, dpi=110, format=path.suffix.lstrip(".").lower() or "png")
+    finally:
+        plt.close(fig)
