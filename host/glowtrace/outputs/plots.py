@@ -135,12 +135,7 @@ def figure(c: Curve, analysis: dict, path, title: str = "") -> None:
     sub = f"flash index {fi:.3f}" if fi is not None else ""
     fig.suptitle((title + ("  -  " + sub if sub else "")).strip(" -"))
     fig.tight_layout()
-    path = Path(path)
-    try:
-        with outfile.replacing(path, "wb") as f:
-            fig.savefig(f, dpi=120, format=path.suffix.lstrip(".").lower() or "png")
-    finally:
-        plt.close(fig)
+    save(fig, path, 120)
 
 
 def circuit_terminal_plot(run, plain, width: int = 100, height: int = 18) -> str:
@@ -183,9 +178,16 @@ def circuit_figure(run, plain, path, title: str = "") -> None:
         a.grid(True, which="both", alpha=0.25)
     fig.suptitle(title)
     fig.tight_layout()
+    save(fig, path, 110)
+
+
+def save(fig, path, dpi: int) -> None:
+    """Write a figure in the format its suffix names (checked by
+    outfile.check before the work), whole or not at all, and close it."""
+    import matplotlib.pyplot as plt
     path = Path(path)
     try:
         with outfile.replacing(path, "wb") as f:
-            fig.savefig(f, dpi=110, format=path.suffix.lstrip(".").lower() or "png")
+            fig.savefig(f, dpi=dpi, format=path.suffix.lstrip(".").lower() or "png")
     finally:
         plt.close(fig)
