@@ -30,7 +30,7 @@ sys.path.insert(0, str(ROOT / "tests"))
 from glowtrace import paths  # noqa: E402
 from glowtrace.errors import GlowtraceError  # noqa: E402
 from glowtrace.logbook.store import Store  # noqa: E402
-from glowtrace.procedures.capture import store_or_keep  # noqa: E402
+from glowtrace.procedures.capture import mark_bench_trip, store_or_keep  # noqa: E402
 from glowtrace.tester.driver import CaptureInterrupted, Tester  # noqa: E402
 from glowtrace.tester.link import Link  # noqa: E402
 from glowtrace.tester.transport import open_port  # noqa: E402
@@ -151,6 +151,7 @@ def capture_faults(runs: int) -> dict:
                         raw = tester.capture(f"F{run}", "A", {"max_s": 20, "range": "low"})
                     except CaptureInterrupted as e:
                         raw, raw.incomplete_reason = e.raw, e.reason
+                    mark_bench_trip(raw)  # as `glowtrace capture` does
                     store_or_keep(store, raw, "12AX7", None, 10.0)
                     if raw.complete:
                         counts["whole"] += 1

@@ -24,6 +24,16 @@ BENCH_TRIPS = {"host_silent": "the tester stopped: the host went silent",
                "max_on_time": "the tester stopped at its maximum on-time"}
 
 
+def mark_bench_trip(raw: RawCapture) -> None:
+    """A curve the tester cut short for a reason that is not the tube (the
+    host went silent, a firmware error, the maximum on-time) is incomplete,
+    however whole its frames; what the link saw of it comes after."""
+    cause = raw.trip_cause
+    if cause in BENCH_TRIPS:
+        raw.incomplete_reason = BENCH_TRIPS[cause] + (
+            f"; then {raw.incomplete_reason}" if raw.incomplete_reason else "")
+
+
 class CaptureNotStored(GlowtraceError):
     """The logbook could not take a finished capture: it is kept whole in a
     file (`path`) that `glowtrace recover` stores later."""
@@ -89,12 +99,7 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
             except CaptureInterrupted as e:
                 raw = e.raw
                 raw.incomplete_reason = e.reason
-            cause = raw.trip_cause
-            if cause in BENCH_TRIPS:
-                # the curve was cut short for a reason that is not the tube;
-                # what the link saw of it comes after
-                raw.incomplete_reason = BENCH_TRIPS[cause] + (
-                    f"; then {raw.incomplete_reason}" if raw.incomplete_reason else "")
+            mark_bench_trip(raw)
             if started_at:
                 raw.started_at = started_at
             if raw.incomplete_reason == "interrupted by the user":
