@@ -13,6 +13,8 @@ those at the mean of the start and trial resistances, as the analysis's
 
 from dataclasses import dataclass, field
 
+import math
+
 import numpy as np
 
 from ..analysis.thermal import ThermalModel
@@ -34,6 +36,44 @@ class Heater:
 
 
 @dataclass
+class Ntc:
+    """An NTC inrush limiter from its data sheet: resistance at 25 C, its B
+    value, R(T) = R25 exp(B (1/T - 1/298.15)); its dissipation constant
+    (W/K: the power that holds it 1 K above the room) and thermal time
+    constant (s): a single heat capacity delta * tau losing delta * (T - Ta)."""
+    r25: float
+    beta: float
+    dissipation_w_per_k: float
+    tau_s: float
+
+    def resistance(self, t_k: float) -> float:
+        return self.r25 * math.exp(self.beta * (1.0 / t_k - 1.0 / 298.15))
+
+    def step(self, t_k: float, power: float, h: float, room_k: float) -> float:
+        """Its temperature after h seconds at this power (exact for a
+        constant power)."""
+        final = room_k + power / self.dissipation_w_per_k
+        return final + (t_k - final) * math.exp(-h / self.tau_s)
+
+
+@dataclass
+class Mosfet:
+    """An N-MOSFET source follower whose gate charges through gate_ohm into
+    gate_f from drive_v: the heaters see at most the gate voltage less the
+    threshold (the data sheet's V_GS(th); its spread is run as two designs),
+    and when it is fully on, its R_DS(on) in series."""
+    gate_ohm: float
+    gate_f: float
+    drive_v: float | None  # None: 10 V above the supply (softstart.study fills it in)
+    vth: float
+    rds_on: float = 0.02
+
+    def limit_v(self, t: float) -> float:
+        vg = self.drive_v * (1.0 - math.exp(-t / (self.gate_ohm * self.gate_f)))
+        return max(0.0, vg - self.vth)
+
+
+@dataclass
 class Circuit:
     supply_v: float
     source_ohm: float = 0.0
@@ -41,6 +81,8 @@ class Circuit:
     bypass_s: float | None = None    # when a switch shorts it; None: never
     ramp_s: float = 0.0              # the supply rises linearly over this time
     series: bool = False             # heaters in series (a string), else parallel
+    ntc: Ntc | None = None           # an inrush limiter in series
+    mosfet: Mosfet | None = None     # a gate-ramped source follower
 
     def check(self) -> None:
         for name, x in (("supply volts", self.supply_v), ("source ohms", self.source_ohm),
@@ -52,11 +94,22 @@ class Circuit:
         if self.bypass_s is not None and not (np.isfinite(self.bypass_s)
                                                and self.bypass_s > 0):
             raise CircuitError("the bypass time must be a positive number of seconds")
+        for part, what in ((self.ntc, "NTC"), (self.mosfet, "MOSFET")):
+            if part is not None and not all(np.isfinite(x) and x > 0 for x in vars(part).values()
+                                            if not isinstance(x, bool)):
+                raise CircuitError(f"every {what} value must be a positive number")
 
-    def supply_at(self, t: float) -> float:
+    def source_v(self, t: float) -> float:
+        """The supply's own voltage, ramped."""
         if self.ramp_s > 0 and t < self.ramp_s:
             return self.supply_v * t / self.ramp_s
         return self.supply_v
+
+    def supply_at(self, t: float) -> float:
+        """What drives the heaters: the supply, no more than a follower's
+        gate lets through."""
+        v = self.source_v(t)
+        return v if self.mosfet is None else min(v, self.mosfet.limit_v(t))
 
     def resistor_in(self, t: float) -> float:
         """The series resistor's ohms at time t (0 once bypassed)."""
@@ -80,6 +133,9 @@ class Run:
     source_w: np.ndarray            # power in the source resistance, W
     supply_w: np.ndarray            # power the supply delivers, W
     names: list = field(default_factory=list)
+    ntc_w: np.ndarray | None = None     # power in the NTC, W
+    ntc_k: np.ndarray | None = None     # its temperature, K
+    mosfet_w: np.ndarray | None = None  # power in the MOSFET, W
 
 
 def time_grid(c: Circuit, t_end: float, n: int = 300, t_first: float = 1e-5) -> np.ndarray:
@@ -91,15 +147,21 @@ def time_grid(c: Circuit, t_end: float, n: int = 300, t_first: float = 1e-5) -> 
         parts.append([c.bypass_s])
     if 0 < c.ramp_s < t_end:
         parts.append(np.linspace(0, c.ramp_s, 60))
+    if c.mosfet is not None:  # the gate's rise, evenly over five time constants
+        tau = c.mosfet.gate_ohm * c.mosfet.gate_f
+        parts.append(np.linspace(0, min(5 * tau, t_end), 80))
     t = np.unique(np.concatenate(parts))
     return t[t <= t_end]
 
 
-def _currents(c: Circuit, t: float, r: list[float]) -> tuple[float, list[float], float]:
+def _currents(c: Circuit, t: float, r: list[float],
+              r_ntc: float = 0.0) -> tuple[float, list[float], float]:
     """(supply current, heater currents, node voltage) at time t for heater
-    resistances r."""
+    resistances r (and the NTC's, when there is one)."""
     v = c.supply_at(t)
-    r_ext = c.source_ohm + c.resistor_in(t)
+    r_ext = c.source_ohm + c.resistor_in(t) + r_ntc
+    if c.mosfet is not None:
+        r_ext += c.mosfet.rds_on
     if c.series:
         i = v / (r_ext + sum(r))
         return i, [i] * len(r), i * sum(r)
@@ -111,44 +173,62 @@ def _currents(c: Circuit, t: float, r: list[float]) -> tuple[float, list[float],
 def simulate(c: Circuit, heaters: list[Heater], t_end: float = 60.0, n: int = 300,
              from_k: float | None = ROOM_K) -> Run:
     """Switch the heaters on in circuit c, from cold (from_k kelvin; None:
-    each model's own room temperature)."""
+    each model's own room temperature). An NTC starts at 20 C too."""
     c.check()
     if not heaters:
         raise CircuitError("no heater to switch on")
     steppers = [h.model._stepper(from_k) for h in heaters]
+    room = from_k or heaters[0].model.t_amb_k
     t = time_grid(c, t_end, n)
     m, k_n = len(heaters), len(t)
     hr, hx = np.empty((m, k_n)), np.empty((m, k_n))
     hw, hs = np.empty((m, k_n)), np.empty((m, k_n))
+    ntc_k = np.full(k_n, room)
     for j, (_, resistance, state) in enumerate(steppers):
         hr[j, 0], (hw[j, 0], hs[j, 0], hx[j, 0]) = resistance(), state
+
+    def r_ntc(tk):
+        return c.ntc.resistance(tk) if c.ntc is not None else 0.0
+
     for k in range(1, k_n):
         h, mid = t[k] - t[k - 1], 0.5 * (t[k - 1] + t[k])
         r0 = [float(x) for x in hr[:, k - 1]]
         saved = [list(s[2]) for s in steppers]
-        _, i0, _ = _currents(c, mid, r0)
+        n0 = ntc_k[k - 1]
+        total, i0, _ = _currents(c, mid, r0, r_ntc(n0))
         for (step, _, _), i in zip(steppers, i0):
             step(i * i, h)
+        n1 = c.ntc.step(n0, total * total * r_ntc(n0), h, room) if c.ntc else n0
         r_mid = [0.5 * (a + s[1]()) for a, s in zip(r0, steppers)]
-        _, i_mid, _ = _currents(c, mid, r_mid)
+        total, i_mid, _ = _currents(c, mid, r_mid, 0.5 * (r_ntc(n0) + r_ntc(n1)))
         for (step, resistance, state), old, i, j in zip(steppers, saved, i_mid, range(m)):
             state[:] = old
             step(i * i, h)
             hr[j, k], (hw[j, k], hs[j, k], hx[j, k]) = resistance(), state
+        if c.ntc is not None:
+            ntc_k[k] = c.ntc.step(n0, total * total * 0.5 * (r_ntc(n0) + r_ntc(n1)), h, room)
     # the currents and powers at each grid point, from the resistances there
     # (just after a bypass or the end of a ramp, its new state)
     cur = np.empty(k_n)
     hi, hv = np.empty((m, k_n)), np.empty((m, k_n))
     res_w, src_w, sup_w = np.empty(k_n), np.empty(k_n), np.empty(k_n)
+    ntc_w, fet_w = np.zeros(k_n), np.zeros(k_n)
     for k in range(k_n):
-        total, ii, _ = _currents(c, t[k], list(hr[:, k]))
+        rn = r_ntc(ntc_k[k])
+        total, ii, _ = _currents(c, t[k], list(hr[:, k]), rn)
         cur[k] = total
         hi[:, k] = ii
         hv[:, k] = np.array(ii) * hr[:, k]
         res_w[k] = total * total * c.resistor_in(t[k])
         src_w[k] = total * total * c.source_ohm
-        sup_w[k] = total * c.supply_at(t[k])
-    return Run(t, cur, hi, hv, hr, hx, hw, hs, res_w, src_w, sup_w, [h.name for h in heaters])
+        ntc_w[k] = total * total * rn
+        if c.mosfet is not None:  # the drop from the supply to what it lets through
+            fet_w[k] = (total * (c.source_v(t[k]) - c.supply_at(t[k]))
+                        + total * total * c.mosfet.rds_on)
+        sup_w[k] = total * c.source_v(t[k])
+    return Run(t, cur, hi, hv, hr, hx, hw, hs, res_w, src_w, sup_w, [h.name for h in heaters],
+               ntc_w if c.ntc else None, ntc_k if c.ntc else None,
+               fet_w if c.mosfet else None)
 
 
 def energy(t: np.ndarray, power: np.ndarray) -> float:

@@ -40,6 +40,14 @@ def figures(run: Run, c: Circuit, heaters: list[Heater]) -> dict:
         out["peak_current_before_bypass_a"] = float(cur[before].max())
         out["heater_volts_at_bypass"] = float(run.heater_v[:, k].max())
         out["peak_current_after_bypass_a"] = float(cur[after].max())
+    if run.mosfet_w is not None:  # linear mode while the gate rises
+        out["mosfet_peak_power_w"] = float(run.mosfet_w.max())
+        out["mosfet_energy_j"] = energy(t, run.mosfet_w)
+    if run.ntc_w is not None:
+        out["ntc_peak_power_w"] = float(run.ntc_w.max())
+        out["ntc_energy_j"] = energy(t, run.ntc_w)
+        out["ntc_settled_k"] = float(run.ntc_k[-1])
+        out["ntc_settled_ohm"] = float(c.ntc.resistance(run.ntc_k[-1]))
     flashing = [j for j, h in enumerate(heaters) if h.model.f > 0]
     out["flash_peak_k"] = (float(max(run.exposed_k[j].max() for j in flashing))
                            if flashing else None)
@@ -58,10 +66,13 @@ def figures(run: Run, c: Circuit, heaters: list[Heater]) -> dict:
 
 
 def study(db_path, sources: list[str], circuit: dict, section: str | None = None,
+          recommend: str | None = None, max_warmup_s: float | None = None,
           **csv_options) -> tuple[dict, Run, Run, list[Heater]]:
     """`glowtrace softstart`: the heaters from their sources, in parallel on
     one supply (default: their rated voltage), the design against a plain
-    switch-on. Returns (figures, design run, plain run, heaters)."""
+    switch-on; with `recommend` (series, ramp or both) the design is the one
+    searched for, under `recommended`. Returns (figures, design run, plain
+    run, heaters)."""
     from .sources import resolve
     heaters = resolve(db_path, sources, section, **csv_options)
     if circuit.get("supply_v") is None:
@@ -69,8 +80,38 @@ def study(db_path, sources: list[str], circuit: dict, section: str | None = None
         if not rated:
             raise CircuitError("no rated voltage known for these heaters: give --supply-v")
         circuit = dict(circuit, supply_v=max(rated))
+    circuit = dict(circuit)
+    vth_max = circuit.pop("vth_max", None)
+    if circuit.get("mosfet") is not None and circuit["mosfet"].drive_v is None:
+        from dataclasses import replace  # a gate drive 10 V above the supply
+        circuit["mosfet"] = replace(circuit["mosfet"], drive_v=circuit["supply_v"] + 10.0)
+    if recommend:
+        from .recommend import recommend as search
+        found = search(heaters, Circuit(**circuit), recommend, max_warmup_s)
+        rec = found["recommended"]
+        if rec["kind"] == "series":
+            circuit.update(series_ohm=rec["series_ohm"], bypass_s=rec["bypass_s"])
+        else:
+            from .simulate import Mosfet
+            circuit["mosfet"] = Mosfet(rec["gate_ohm"], rec["gate_uf"] * 1e-6,
+                                       rec["gate_drive_v"], rec["vth"])
     out, run, plain = evaluate(Circuit(**circuit), heaters)
     out["supply_v"] = circuit["supply_v"]
+    if recommend:
+        out["recommended"] = rec
+    if vth_max is not None and circuit.get("mosfet") is not None:
+        # the data sheet's threshold spread: the same design at its highest threshold
+        from dataclasses import replace
+        worst = Circuit(**dict(circuit, mosfet=replace(circuit["mosfet"], vth=vth_max)))
+        hi, _, _ = evaluate(worst, heaters)
+        out["at_vth_max"] = {k: hi[k] for k in ("peak_current_a", "warmup_90_s",
+                                                "flash_peak_k", "mosfet_peak_power_w",
+                                                "mosfet_energy_j")}
+        settled = min(x["settled_volts"] for x in hi["heaters"])
+        if settled < 0.95 * circuit["supply_v"]:
+            out["warnings"].append(
+                f"at the highest threshold ({vth_max:g} V) the heaters settle at "
+                f"{settled:.2f} V: the gate drive does not turn the MOSFET fully on")
     out["cautions"] = list(CAUTIONS)
     return out, run, plain, heaters
 
@@ -98,8 +139,8 @@ def warnings(out: dict, c: Circuit, heaters: list[Heater]) -> list[str]:
                      f"rated {max(rated):g} V: lower the supply")
         if hot_v < 0.95 * min(rated):
             w.append(f"the heaters settle at {hot_v:.2f} V, more than 5 % below their rated "
-                     f"{min(rated):g} V: the series resistor is never bypassed, or the "
-                     "source resistance is too high")
+                     f"{min(rated):g} V: what is in series drops too much (a resistor never "
+                     "bypassed, an NTC, the source resistance)")
     if c.series_ohm and c.bypass_s is not None and out["peak_current_after_bypass_a"] and \
             out["peak_current_after_bypass_a"] > 0.8 * out["plain"]["peak_current_a"]:
         w.append("the bypass closes on heaters still nearly cold: its inrush is "

@@ -191,3 +191,41 @@ def save(fig, path, dpi: int) -> None:
             fig.savefig(f, dpi=dpi, format=path.suffix.lstrip(".").lower() or "png")
     finally:
         plt.close(fig)
+
+
+def string_terminal_plot(run, rated: list, width: int = 100, height: int = 18) -> str:
+    """Each heater's voltage over its rating after switch-on."""
+    import plotext as plt
+    plt.clear_figure()
+    plt.plotsize(width, height)
+    plt.xscale("log")
+    plt.title("heater volts over rated volts")
+    plt.xlabel("time after switch-on, s (log)")
+    k = run.t > 0
+    for j, name in enumerate(run.names):
+        plt.plot(run.t[k].tolist(), (run.heater_v[j, k] / rated[j]).tolist(), label=name,
+                 marker="braille")
+    plt.hline(1.1)
+    plt.theme("clear")
+    return plt.build()
+
+
+def string_figure(run, rated: list, path, title: str = "") -> None:
+    """Each heater's voltage over its rating against time, one colour each,
+    with the 110 % line."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    fig, ax = plt.subplots(figsize=(8, 4.6))
+    k = run.t > 0
+    for j, name in enumerate(run.names):
+        ax.plot(run.t[k], run.heater_v[j, k] / rated[j], lw=1.3, color=f"C{j}", label=name)
+    ax.axhline(1.1, color="0.4", lw=0.8, ls="--", label="110 % of rated")
+    ax.set_xscale("log")
+    ax.set_xlabel("time after switch-on, s")
+    ax.set_ylabel("heater volts / rated volts")
+    ax.grid(True, which="both", alpha=0.25)
+    ax.legend(fontsize=8)
+    fig.suptitle(title)
+    fig.tight_layout()
+    save(fig, path, 110)
