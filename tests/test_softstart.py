@@ -281,3 +281,39 @@ def test_circuit_commands_bad_input(tmp_path, capsys, argv, words):
     err = capsys.readouterr().err
     assert rc in (1, 2) and words in " ".join(err.split()) and "Traceback" not in err
     assert not (tmp_path / "none.db").exists()
+
+
+# against ngspice --------------------------------------------------------------
+@pytest.mark.parametrize("circuit,count", [
+    (Circuit(6.3, 0.05), 1),
+    (Circuit(6.3, 0.05, 10.0, bypass_s=2.0), 1),
+    (Circuit(6.3, 0.1, ramp_s=1.5), 2),
+    (Circuit(12.6, 0.1, 8.0, series=True), 2),
+], ids=["plain", "preheat-and-bypass", "ramp-two-in-parallel", "two-in-series"])
+def test_the_simulation_agrees_with_ngspice(fitted, tmp_path, circuit, count):
+    """ngspice (an independent integrator; the Debian package, .ci/run
+    installs it) runs the same circuit with each heater written as a
+    behavioural subcircuit (circuits/spice.py): currents, heater voltages and
+    the flashing share's temperature agree within 1 %."""
+    import subprocess
+
+    from glowtrace.circuits.spice import deck, read_wrdata
+    from spice import NGSPICE
+    if NGSPICE is None:
+        pytest.skip("ngspice is not installed (Debian package ngspice; .ci/run installs it)")
+    _, h = fitted
+    hs = [h] * count
+    out = tmp_path / "out.txt"
+    (tmp_path / "deck.cir").write_text(deck(circuit, hs, 30.0, str(out)))
+    subprocess.run([NGSPICE, "-b", str(tmp_path / "deck.cir")], capture_output=True,
+                   timeout=120)
+    d = read_wrdata(str(out))
+    ts, current = d[:, 0], -d[:, 1]
+    run = simulate(circuit, hs, 30.0)
+    times = [1e-4, 0.01, 0.1, 0.5, 1.0, 1.9, 2.1, 3.0, 10.0, 29.0]
+    assert np.interp(times, run.t, run.current) == pytest.approx(
+        np.interp(times, ts, current), rel=0.01)
+    assert np.interp(times, run.t, run.heater_v[0]) == pytest.approx(
+        np.interp(times, ts, d[:, 2]), rel=0.01)
+    assert run.exposed_k[0].max() == pytest.approx(d[:, 2 + count].max(), rel=0.01)
+    assert run.current.max() == pytest.approx(current.max(), rel=0.01)
