@@ -272,8 +272,13 @@ def test_string_command(tmp_path, capsys):
     (["softstart", "x.csv", "--recommend", "--series-ohm", "4"], "chooses the design"),
     (["softstart", "x.csv", "--gate-ohm", "1000"], "needs --gate-ohm, --gate-uf and --vth"),
     (["softstart", "x.csv", "--ntc", "10,3000,-1,30"], "positive"),
+    (["softstart", "{csv}", "--type", "12AX7", "--supply-v", "120"], "far above"),
+    (["softstart", "{csv}", "--series-ohm", "-5"], "too small"),
 ])
 def test_circuit_commands_bad_input(tmp_path, capsys, argv, words):
+    csv = tmp_path / "c.csv"
+    write_curve(csv, heater(seed=3, t_end=12.0))
+    argv = [a.replace("{csv}", str(csv)) for a in argv]
     try:
         rc = main([*argv, "--db", str(tmp_path / "none.db")])
     except SystemExit as e:
@@ -317,3 +322,19 @@ def test_the_simulation_agrees_with_ngspice(fitted, tmp_path, circuit, count):
         np.interp(times, ts, d[:, 2]), rel=0.01)
     assert run.exposed_k[0].max() == pytest.approx(d[:, 2 + count].max(), rel=0.01)
     assert run.current.max() == pytest.approx(current.max(), rel=0.01)
+
+
+@pytest.mark.parametrize("width", [60, 80, 120])
+def test_circuit_screens_fit_the_terminal(tmp_path, capsys, monkeypatch, width):
+    from test_screens import assert_whole, screen
+    csv = tmp_path / "c.csv"
+    write_curve(csv, heater(seed=3, f=0.04, t_end=15.0))
+    rc, out, err = screen(capsys, monkeypatch, width, "softstart", str(csv), "--type", "12AX7",
+                          "--ambient-c", "22", "--series-ohm", "10", "--bypass-s", "3",
+                          "--db", str(tmp_path / "b.db"))
+    assert rc == 0
+    assert_whole(out, width, ["peak supply current", "1.0", "K"])
+    rc, out, err = screen(capsys, monkeypatch, width, "string", "12BE6", "12BA6", "50C5",
+                          "35W4", "--supply-v", "110", "--db", str(tmp_path / "b.db"))
+    assert rc == 0
+    assert_whole(out, width, ["12BE6", "50C5", "35W4", "Remedies"])

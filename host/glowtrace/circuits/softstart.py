@@ -7,6 +7,7 @@ import numpy as np
 from .simulate import Circuit, CircuitError, Heater, Run, energy, simulate, warmup_90
 
 SETTLE_TAU = 25.0  # simulate this many sleeve time constants (as the analysis does)
+FAR_ABOVE = 3.0    # a supply past this many times the rating is no soft start
 
 CAUTIONS = (
     "Preheat and dropping resistors run hot: rate them for the power shown, mount them "
@@ -80,6 +81,11 @@ def study(db_path, sources: list[str], circuit: dict, section: str | None = None
         if not rated:
             raise CircuitError("no rated voltage known for these heaters: give --supply-v")
         circuit = dict(circuit, supply_v=max(rated))
+    rated = [h.rated_v for h in heaters if h.rated_v]
+    if rated and circuit["supply_v"] > FAR_ABOVE * max(rated):
+        raise CircuitError(f"{circuit['supply_v']:g} V is far above these heaters' rated "
+                           f"{max(rated):g} V: heaters in parallel run from their own rated "
+                           "voltage (a series string is `glowtrace string`)")
     circuit = dict(circuit)
     vth_max = circuit.pop("vth_max", None)
     if circuit.get("mosfet") is not None and circuit["mosfet"].drive_v is None:
