@@ -43,11 +43,12 @@ def _read(path: Path) -> dict:
 
 
 def load(path: str | Path | None = None) -> dict:
-    cfg = _read(DEFAULTS)
+    defaults = _read(DEFAULTS)
+    cfg = defaults
     extra = Path(path) if path else user_file()
     if path or extra.exists():
         cfg = _merge(cfg, _read(extra))
-    check(cfg, str(extra))
+    check(cfg, str(extra), defaults)
     return cfg
 
 
@@ -84,11 +85,11 @@ def _check_kinds(default, value, key: str, need) -> None:
                     _check_kinds(fields[k], v, f"{key}[{n}].{k}", need)
 
 
-def check(cfg: dict, where: str) -> None:
+def check(cfg: dict, where: str, defaults: dict) -> None:
+    """Every value of cfg of the kind the built-in defaults have, and in range."""
     def need(ok: bool, what: str):
         if not ok:
             raise GlowtraceError(f"scoring settings ({where}): {what}")
-    defaults = _read(DEFAULTS)
     for k, d in defaults.items():
         _check_kinds(d, cfg.get(k), k, need)
     need(int(cfg["baseline"]["count"]) >= 1, "baseline.count must be at least 1")

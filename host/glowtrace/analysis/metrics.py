@@ -9,6 +9,7 @@ current enters and stays in a 1 % tolerance band about its final level."""
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.ndimage import median_filter
 
 from .physics.tungsten import HeaterWire
 from .curve import Curve
@@ -97,12 +98,9 @@ def dropouts(t: np.ndarray, i: np.ndarray, noise: float) -> np.ndarray:
     neighbours and comes back: a heater's current changes smoothly (its
     temperature cannot jump), so such a step is a contact opening for a
     moment, in the socket or the leads."""
-    half = DROPOUT_WINDOW // 2
     if len(i) < DROPOUT_WINDOW:
         return np.zeros(0)
-    win = np.lib.stride_tricks.sliding_window_view(np.pad(i, half, mode="edge"),
-                                                   DROPOUT_WINDOW)
-    med = np.median(win, axis=1)
+    med = median_filter(i, size=DROPOUT_WINDOW, mode="nearest")
     low = ((med - i > DROPOUT_REL * np.abs(med)) & (med - i > DROPOUT_NOISE * noise)
            & (t > DROPOUT_AFTER_S))
     starts = low & ~np.concatenate([[False], low[:-1]])

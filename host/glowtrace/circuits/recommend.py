@@ -63,8 +63,8 @@ def gate_rc(ramp_s: float, supply_v: float, drive_v: float, vth: float) -> tuple
 
 
 def search(heaters: list[Heater], base: Circuit, kind: str, max_warmup_s: float | None):
-    """[(score, warm-up, circuit)] of every candidate, best first, within the
-    warm-up allowed."""
+    """[(score, warm-up, circuit, ramp time or None)] of every candidate,
+    best first, within the warm-up allowed."""
     t_end = sim_length(heaters, replace(base, bypass_s=max(BYPASS_S)))
     found = []
     if kind in ("series", "both"):
@@ -72,14 +72,14 @@ def search(heaters: list[Heater], base: Circuit, kind: str, max_warmup_s: float 
             for tb in BYPASS_S:
                 c = replace(base, series_ohm=r, bypass_s=tb)
                 run = simulate(c, heaters, t_end, n=SEARCH_POINTS)
-                found.append((_score(run, heaters), _warmup(run), c))
+                found.append((_score(run, heaters), _warmup(run), c, None))
     if kind in ("ramp", "both"):
         drive = base.supply_v + 10.0
         for tr in RAMP_S:
             r, cu = gate_rc(tr, base.supply_v, drive, VTH_TYPICAL)
             c = replace(base, mosfet=Mosfet(r, cu * 1e-6, drive, VTH_TYPICAL))
             run = simulate(c, heaters, t_end, n=SEARCH_POINTS)
-            found.append((_score(run, heaters), _warmup(run), c))
+            found.append((_score(run, heaters), _warmup(run), c, tr))
     ok = [f for f in found if max_warmup_s is None or f[1] <= max_warmup_s]
     return sorted(ok, key=lambda f: (round(f[0], 1), f[1]))
 
@@ -94,7 +94,7 @@ def recommend(heaters: list[Heater], base: Circuit, kind: str = "both",
     if not ranked:
         raise CircuitError(f"no design warms up within {limit:.1f} s: allow a longer "
                            "--max-warmup-s")
-    _, _, best = ranked[0]
+    _, _, best, ramp_s = ranked[0]
     out, _, _ = evaluate(best, heaters)
     rec = {"kind": "series" if best.mosfet is None else "ramp",
            "flash_peak_k": out["flash_peak_k"], "warmup_90_s": out["warmup_90_s"],
@@ -114,12 +114,10 @@ def recommend(heaters: list[Heater], base: Circuit, kind: str = "both",
                                                    out["resistor_energy_j"] / best.bypass_s)),
                    bypass_switch_rating_a=_first_at_least(
                        SWITCH_RATINGS, DERATE * out["peak_current_after_bypass_a"]))
-        rec["why"] = _why_series(best, out, heaters, ranked)
+        rec["why"] = _why_series(best, out, heaters)
     else:
         m = best.mosfet
-        rec.update(ramp_s=next(tr for tr in RAMP_S
-                               if gate_rc(tr, best.supply_v, m.drive_v, m.vth)[0] == m.gate_ohm),
-                   gate_ohm=m.gate_ohm, gate_uf=m.gate_f * 1e6, gate_drive_v=m.drive_v,
+        rec.update(ramp_s=ramp_s, gate_ohm=m.gate_ohm, gate_uf=m.gate_f * 1e6, gate_drive_v=m.drive_v,
                    vth=m.vth, mosfet_peak_power_w=out["mosfet_peak_power_w"],
                    mosfet_energy_j=out["mosfet_energy_j"],
                    caution="choose a MOSFET rated for linear operation, inside its safe "
@@ -136,7 +134,7 @@ def _k(x) -> str:
     return "-" if x is None else f"{x:.0f} K"
 
 
-def _why_series(best: Circuit, out: dict, heaters, ranked) -> str:
+def _why_series(best: Circuit, out: dict, heaters) -> str:
     """One sentence: why this resistor and delay, from the neighbours'
     simulated figures."""
     t_end = sim_length(heaters, best)

@@ -76,12 +76,11 @@ def study(db_path, sources: list[str], circuit: dict, section: str | None = None
     run, heaters)."""
     from .sources import resolve
     heaters = resolve(db_path, sources, section, **csv_options)
+    rated = [h.rated_v for h in heaters if h.rated_v]
     if circuit.get("supply_v") is None:
-        rated = [h.rated_v for h in heaters if h.rated_v]
         if not rated:
             raise CircuitError("no rated voltage known for these heaters: give --supply-v")
         circuit = dict(circuit, supply_v=max(rated))
-    rated = [h.rated_v for h in heaters if h.rated_v]
     if rated and circuit["supply_v"] > FAR_ABOVE * max(rated):
         raise CircuitError(f"{circuit['supply_v']:g} V is far above these heaters' rated "
                            f"{max(rated):g} V: heaters in parallel run from their own rated "

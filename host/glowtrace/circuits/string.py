@@ -63,8 +63,8 @@ def typical_model(type_name: str) -> tuple[ThermalModel, list[str]]:
 
 def _heater(store: Store | None, source: str, notes: list) -> tuple[Heater, str]:
     """A tube label (its newest good cold start) or a type name."""
-    if store is not None and store.tube(source):
-        tube = store.tube(source)
+    tube = store.tube(source) if store is not None else None
+    if tube:
         if not tube.get("type"):
             raise StringError(f"tube {source!r} has no type recorded: its rating is unknown")
         t = catalogue.load().get(tube["type"])

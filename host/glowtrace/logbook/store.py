@@ -6,6 +6,7 @@ whole or not at all."""
 import json
 import os
 import sqlite3
+import tempfile
 import time
 from contextlib import contextmanager
 from datetime import datetime, timezone
@@ -14,7 +15,7 @@ from pathlib import Path
 
 import sqlite_utils
 
-from . import samples_codec
+from . import floatrows, samples_codec
 from ..tester.raw import RawCapture
 from ..errors import StoreError
 
@@ -343,9 +344,6 @@ class Store:
         volts, amps and optionally light). It is packed (LZMA) into another
         temporary file before the transaction, and written into the logbook
         a chunk at a time: a short transaction in bounded memory."""
-        import tempfile
-
-        from . import floatrows
         row = {"uuid": uuid, "tube": tube, "section": section, "started_at": started_at,
                "stored_at": _now(), "complete": 1, "incomplete_reason": None,
                "end_reason": "imported", "trip_cause": None, "board_id": None,
@@ -375,7 +373,6 @@ class Store:
         """(capture row, column names, row count, an iterator of float64
         row chunks) of an imported curve, read from the logbook a chunk at a
         time."""
-        from . import floatrows
         c = self.db["captures"].get(uuid)
         rowid, names, n = self.db.execute(
             "SELECT rowid, channels, n_sets FROM capture_samples WHERE capture_uuid = ?",
@@ -393,7 +390,6 @@ class Store:
     def load_imported(self, uuid: str, max_points: int | None = None) -> tuple[dict, dict]:
         """(capture row, columns by name) of an imported curve: every row, or
         at most max_points means of consecutive rows (floatrows.reduced)."""
-        from . import floatrows
         c, names, n, rows = self.imported_rows(uuid)
         data, _ = floatrows.reduced(rows, n, len(names), max_points)
         return c, {name: data[:, k] for k, name in enumerate(names)}
