@@ -6,8 +6,9 @@ model fit, and prints the median time next to two baselines timed in the
 same run:
   - a fair one: the very same analysis (same bins, model, bounds and
     least_squares settings) with only the fit's integrator swapped for
-    scipy's solve_ivp (LSODA, rtol 1e-5); the ratio for the whole analysis
-    and for the fit alone;
+    scipy's solve_ivp (LSODA, rtol 1e-5), and so its Jacobian by forward
+    differences over solve_ivp runs in place of the compiled complex step;
+    the ratio for the whole analysis and for the fit alone;
   - a straightforward one: least_squares with solve_ivp integrating the
     two-node model over every sample (rtol 1e-7), as someone might first
     write it (not the same work: kept for comparison with earlier runs)."""
@@ -30,7 +31,8 @@ from glowtrace import catalogue  # noqa: E402
 from glowtrace.analysis.analyze import analyze_curve  # noqa: E402
 from glowtrace.analysis.curve import from_capture  # noqa: E402
 from glowtrace.analysis.thermal import ThermalModel  # noqa: E402
-from glowtrace.analysis.physics.tungsten import HeaterWire, fast_ratio  # noqa: E402
+from glowtrace.analysis import stepper  # noqa: E402
+from glowtrace.analysis.physics.tungsten import HeaterWire  # noqa: E402
 from simhelp import sim_tester  # noqa: E402
 
 
@@ -71,16 +73,17 @@ def baseline_fit(c, ambient_c, m):
     return least_squares(residual, x0, xtol=1e-4, ftol=1e-6, max_nfev=60, diff_step=1e-3)
 
 
-def solve_ivp_resistance(self, edges, i2, t0_k=None):
-    """ThermalModel.resistance_under_current with scipy's solve_ivp in place
-    of the model's own stepper: the same three nodes, the same tungsten
-    table, the same piecewise-constant current per interval, the same mean
-    of the resistances at an interval's two ends."""
-    a = fast_ratio(self.k)  # the same scalar table the stepper reads
-    _, g, k_s, c_w, c_s, k_x, c_x, _ = self.constants()
-    ta4 = self.t_amb_k ** 4
-    r20m, r20x = self.r20 * (1 - self.f), self.r20 * self.f
-    start = self.t_amb_k if t0_k is None else t0_k
+def solve_ivp_resistance(edges, i2, c, rt, st, t0, dt, start_k):
+    """stepper.under_current with scipy's solve_ivp in place of the compiled
+    stepper: the same three nodes and constants, the same tungsten table,
+    the same piecewise-constant current per interval, the same mean of the
+    resistances at an interval's two ends."""
+    g, k_s, c_w, c_s, k_x, c_x, ta4, r20m, r20x = (float(x.real) for x in c)
+    n = len(rt) - 1
+
+    def a(t):
+        k = min(max(int((t - t0) / dt), 0), n)
+        return rt[k] + (t - t0 - k * dt) * st[k]
 
     def rhs(t, y):
         k = min(max(int(np.searchsorted(edges, t, side="right")) - 1, 0), len(i2) - 1)
@@ -89,13 +92,30 @@ def solve_ivp_resistance(self, edges, i2, t0_k=None):
         return [(q * r20m * a(tw) - g * (tw - ts)) / c_w,
                 (g * (tw - ts) - k_s * (ts ** 4 - ta4)) / c_s,
                 (q * r20x * a(tx) - k_x * (tx ** 4 - ta4)) / c_x if r20x else 0.0]
-    sol = solve_ivp(rhs, (edges[0], edges[-1]), [start] * 3, method="LSODA", t_eval=edges,
+    sol = solve_ivp(rhs, (edges[0], edges[-1]), [start_k] * 3, method="LSODA", t_eval=edges,
                     rtol=1e-5, atol=1e-3, first_step=min(1e-6, edges[1] / 10))
     if not sol.success or sol.y.shape[1] != len(edges):
         return np.full(len(i2), 1e6)
-    ratio = HeaterWire(self.k).ratio  # the same table, for arrays
-    r = r20m * ratio(sol.y[0]) + (r20x * ratio(sol.y[2]) if r20x else 0.0)
+    r = np.array([r20m * a(x) for x in sol.y[0]]) \
+        + (np.array([r20x * a(x) for x in sol.y[2]]) if r20x else 0.0)
     return 0.5 * (r[1:] + r[:-1])
+
+
+FD_STEP = 1e-3  # in the log parameters: solve_ivp's tolerance turns smaller steps to noise
+
+
+def solve_ivp_jacobian(edges, i2, cs, rt, st, t0, dt, start_k):
+    """The Jacobian by forward differences over solve_ivp integrations (one
+    per parameter, as least_squares' own '2-point' would), the constants
+    moved by FD_STEP along each parameter's direction."""
+    base = cs[0].real.copy()
+    r0 = solve_ivp_resistance(edges, i2, base, rt, st, t0, dt, start_k)
+    cols = []
+    for row in cs:
+        moved = base + FD_STEP * row.imag / stepper.COMPLEX_STEP
+        cols.append((solve_ivp_resistance(edges, i2, moved, rt, st, t0, dt, start_k) - r0)
+                    / FD_STEP)
+    return np.array(cols).T
 
 
 def timed(fn, runs):
@@ -110,7 +130,7 @@ def timed(fn, runs):
 def fair(cases, ax7, runs):
     """The same analysis and the same fit, only the integrator swapped."""
     from glowtrace.analysis import thermal
-    own = thermal.ThermalModel.resistance_under_current
+    own = stepper.under_current, stepper.under_current_jacobian
     for name, (c, amb) in cases.items():
         on = c.t > 0
         b = thermal.bin_curve(c.t[on], c.i[on], c.v[on] / c.i[on])
@@ -123,12 +143,13 @@ def fair(cases, ax7, runs):
                                flash=flash)
         ours_all, _ = timed(lambda: analyze_curve(c, amb, ax7), runs)
         ours_fit, f1 = timed(one_fit, runs)
-        thermal.ThermalModel.resistance_under_current = solve_ivp_resistance
+        stepper.under_current = solve_ivp_resistance
+        stepper.under_current_jacobian = solve_ivp_jacobian
         try:
             base_all, mb = timed(lambda: analyze_curve(c, amb, ax7), 1)
             base_fit, f2 = timed(one_fit, 1)
         finally:
-            thermal.ThermalModel.resistance_under_current = own
+            stepper.under_current, stepper.under_current_jacobian = own
         print(f"fair baseline, {name}: whole analysis {base_all:.2f} s against "
               f"{1000 * ours_all:.1f} ms = {base_all / ours_all:.0f}x; the fit alone "
               f"({'flash' if flash else 'even'} model, {f2.nfev} evaluations against "

@@ -122,3 +122,69 @@ def test_section_imbalance_of_a_dual_heater():
     rb = a["sections"]["B"]["hot_resistance_ohm"]
     assert a["section_imbalance"] == pytest.approx(abs(ra - rb) / ((ra + rb) / 2), rel=1e-4)
     assert a["section_imbalance"] < 0.03  # matched sections, converter gain errors only
+
+
+def test_complex_step_jacobian_matches_central_differences():
+    # the fit's exact derivatives against plain central differences of the
+    # real integration (step 1e-5 in the log parameters), for every fitted
+    # parameter of the flash model
+    from glowtrace.analysis import stepper, thermal
+    flashing = ThermalModel(**{**TRUE.__dict__, "f": 0.08, "tau_x": 0.15})
+    edges = np.concatenate([[0.0], np.geomspace(1e-3, 40.0, 60)])
+    i2 = np.interp(edges[1:], *_curve_i2(flashing))
+    tab = flashing._table()
+    names = ["r_hot", "dt_ws", "tau_w", "tau_s", "f", "tau_x"]
+    base = {n: getattr(flashing, n) for n in names}
+
+    def pack(moved):
+        p = dict(base, **moved)
+        return thermal.derived(flashing.r20, flashing.k, flashing.t_amb_k,
+                               p_hot=flashing.p_hot, **p)
+    rows = [pack({n: base[n] * complex(np.exp(1j * stepper.COMPLEX_STEP))}) for n in names]
+    jac = stepper.under_current_jacobian(edges, i2, np.array(rows, complex), *tab,
+                                         flashing.t_amb_k)
+    for j, n in enumerate(names):
+        up, down = (stepper.under_current(edges, i2, np.array(pack({n: base[n] * np.exp(s)})),
+                                          *tab, flashing.t_amb_k) for s in (1e-5, -1e-5))
+        fd = (up - down) / 2e-5
+        assert np.allclose(jac[:, j], fd, rtol=1e-4, atol=1e-6 * np.abs(fd).max()), n
+
+
+def _curve_i2(model):
+    t, _, i, _ = model.in_circuit(6.3, 0.0, t_end=40.0, n=200)
+    return t, i * i
+
+
+def test_pure_python_fallback_gives_the_same_figures(tmp_path):
+    # the same analysis with numba turned off (the fallback when it cannot
+    # install) in a fresh interpreter: every figure equal to 6 digits
+    import json
+    import subprocess
+    import sys
+    from glowtrace.analysis import stepper
+    from glowtrace.analysis.csvio import write_curve
+    if not stepper.COMPILED:
+        pytest.skip("numba is not installed: only the fallback runs here")
+    c = _measured(ThermalModel(**{**TRUE.__dict__, "f": 0.08, "tau_x": 0.15}), 6.3, 0.05, 0.001)
+    path = tmp_path / "curve.csv"
+    write_curve(path, c)
+    code = ("import json, sys; from glowtrace.analysis.analyze import analyze_file; "
+            "from glowtrace.analysis import stepper; "
+            "_, m = analyze_file(sys.argv[1], 22.0, rated_v=6.3, rated_a=0.15); "
+            "print(json.dumps([stepper.COMPILED, m]))")
+    runs = {}
+    for off in ("", "1"):
+        env = dict(__import__("os").environ, GLOWTRACE_NO_NUMBA=off)
+        out = subprocess.run([sys.executable, "-c", code, str(path)], env=env, check=True,
+                             capture_output=True, text=True).stdout
+        compiled, runs[off] = json.loads(out)
+        assert compiled == (not off)
+    assert runs["1"]["thermal_model"].pop("fit_evaluations") > 0
+    runs[""]["thermal_model"].pop("fit_evaluations")
+    fallback, compiled = runs["1"], runs[""]
+    fallback.update(fallback.pop("thermal_model"))
+    compiled.update(compiled.pop("thermal_model"))
+    assert fallback.keys() == compiled.keys()
+    for k, x in compiled.items():  # 6 digits: the figures are stored rounded to 6
+        assert fallback[k] == (pytest.approx(x, rel=2e-6) if isinstance(x, float) else x), k
+    assert compiled["flash_index"] == pytest.approx(0.08, rel=0.2)

@@ -7,4 +7,4 @@ rated voltage, and the runner that analyses stored captures. It reads the
 logbook and the tester's raw captures, so it may import `logbook`, `tester` and
 the shared top-level modules; never judgement, outputs, procedures or cli."""
 
-ANALYSIS_VERSION = "2.1"
+ANALYSIS_VERSION = "2.2"

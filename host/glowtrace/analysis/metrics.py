@@ -42,15 +42,23 @@ class Measured:
     r_end: float | None = None
 
 
-def log_smooth(t: np.ndarray, y: np.ndarray, rel: float = SMOOTH_REL,
-               min_half: int = 2) -> np.ndarray:
-    """Centred moving mean over [t/(1+rel), t*(1+rel)], at least
-    2*min_half+1 samples wide: even smoothing on a log time axis."""
+def log_windows(t: np.ndarray, rel: float = SMOOTH_REL,
+                min_half: int = 2) -> tuple[np.ndarray, np.ndarray]:
+    """The sample windows [lo, hi) of log_smooth: computed once per curve,
+    as every smoothed channel of it shares them."""
     n = len(t)
     idx = np.arange(n)
     lo = np.minimum(np.searchsorted(t, t / (1 + rel), "left"), np.maximum(idx - min_half, 0))
     hi = np.maximum(np.searchsorted(t, t * (1 + rel), "right"),
                     np.minimum(idx + min_half + 1, n))
+    return lo, hi
+
+
+def log_smooth(t: np.ndarray, y: np.ndarray, rel: float = SMOOTH_REL,
+               min_half: int = 2, windows=None) -> np.ndarray:
+    """Centred moving mean over [t/(1+rel), t*(1+rel)], at least
+    2*min_half+1 samples wide: even smoothing on a log time axis."""
+    lo, hi = windows if windows is not None else log_windows(t, rel, min_half)
     c = np.concatenate([[0.0], np.cumsum(y)])
     return (c[hi] - c[lo]) / (hi - lo)
 
@@ -174,7 +182,8 @@ def measure(c: Curve, ambient_c: float, wire: HeaterWire, rated_v: float | None 
     vals["inrush_ratio"] = peak / i_hot
 
     # warm-up: reference levels between the two resistance state levels
-    rs = log_smooth(t, np.nan_to_num(r, nan=r_cold))
+    windows = log_windows(t)
+    rs = log_smooth(t, np.nan_to_num(r, nan=r_cold), windows=windows)
     rise = r_hot - r_cold
     if rise > 0.05 * r_hot:
         vals["warmup_50_s"] = first_crossing(t, rs, r_cold + 0.5 * rise)
@@ -184,7 +193,7 @@ def measure(c: Curve, ambient_c: float, wire: HeaterWire, rated_v: float | None 
                  "(a resistor, a short, or a heater that was already hot)")
 
     # settling: last exit from the 1 % band about the final current
-    i_s = log_smooth(t, i)
+    i_s = log_smooth(t, i, windows=windows)
     band = SETTLE_BAND * i_hot
     outside = np.nonzero(np.abs(i_s - i_hot) > band)[0]
     noise = float(np.std(i[tail] - i_s[tail]))
@@ -206,7 +215,7 @@ def measure(c: Curve, ambient_c: float, wire: HeaterWire, rated_v: float | None 
 
     # supply and rating checks
     early = t <= 0.02
-    vs = log_smooth(t, v)
+    vs = log_smooth(t, v, windows=windows)
     if early.any() and v_hot > 0:
         sag = (v_hot - float(vs[early].min())) / v_hot
         if sag > SAG_LIMIT:

@@ -29,6 +29,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from scipy.optimize import least_squares
 
+from . import stepper
 from .physics.tungsten import HeaterWire, fast_ratio
 
 
@@ -47,22 +48,17 @@ class ThermalModel:
 
     # derived constants ---------------------------------------------------
     def constants(self):
-        a = fast_ratio(self.k)
-        wire = HeaterWire(self.k)
-        t_hot = float(wire.temperature(self.r_hot / self.r20))
-        ta = self.t_amb_k
-        t_s = max(t_hot - self.dt_ws, ta + 20.0)
-        p_w = (1.0 - self.f) * self.p_hot
-        g = p_w / (t_hot - t_s)
-        k_s = p_w / (t_s ** 4 - ta ** 4)
-        c_w = self.tau_w * g
-        c_s = self.tau_s * 4.0 * k_s * t_s ** 3
-        if self.f > 0:
-            k_x = self.f * self.p_hot / (t_hot ** 4 - ta ** 4)
-            c_x = self.tau_x * 4.0 * k_x * t_hot ** 3
-        else:
-            k_x, c_x = 0.0, 1.0
-        return a, g, k_s, c_w, c_s, k_x, c_x, t_hot
+        """(ratio table, G, K_s, C_w, C_s, K_x, C_x, T_hot) of this model."""
+        c = derived(self.r20, self.k, self.t_amb_k, self.r_hot, self.p_hot, self.dt_ws,
+                    self.tau_w, self.tau_s, self.f, self.tau_x)
+        return (fast_ratio(self.k),) + tuple(float(x.real) for x in c[:6]) \
+            + (float(hot_temperature(self.r_hot / self.r20, self.k).real),)
+
+    def packed(self) -> np.ndarray:
+        """The constants as the compiled stepper takes them (stepper.PACK)."""
+        return np.array([x.real for x in derived(
+            self.r20, self.k, self.t_amb_k, self.r_hot, self.p_hot, self.dt_ws,
+            self.tau_w, self.tau_s, self.f, self.tau_x)])
 
     def as_dict(self) -> dict:
         d = asdict(self)
@@ -74,110 +70,75 @@ class ThermalModel:
         return cls(**{k: v for k, v in d.items() if k in cls.__dataclass_fields__})
 
     # simulation --------------------------------------------------------
+    def _table(self):
+        a = fast_ratio(self.k)
+        return a.table, a.slopes, a.t0, a.step
+
     def _stepper(self, t0_k: float | None = None):
-        a, g, k_s, c_w, c_s, k_x, c_x, _ = self.constants()
-        ta4 = self.t_amb_k ** 4
-        r20m = self.r20 * (1.0 - self.f)
-        r20x = self.r20 * self.f
-        start = self.t_amb_k if t0_k is None else t0_k
-        state = [start, start, start]
-        exp, sqrt = math.exp, math.sqrt
-
-        def resistance():
-            r = r20m * a(state[0])
-            if r20x:
-                r += r20x * a(state[2])
-            return r
-
-        def phi(z):
-            """(e^z - 1) / z, accurate near zero."""
-            return 1.0 + 0.5 * z if abs(z) < 1e-6 else (exp(z) - 1.0) / z
-
-        def coupled(tw, ts, lw, ls, i2, h):
-            """Wire and sleeve over h seconds: the pair's equations
-            linearised about (lw, ls) and solved exactly,
-                x(h) = x0 + h * phi1(A h) (A x0 + c),
-            with phi1(A h) for the 2x2 matrix from its two real eigenvalues
-            (real because a12 * a21 > 0). Exact for the linearised system,
-            also when Joule heating under a fixed current outgrows
-            conduction (a positive eigenvalue), and accurate for steps far
-            longer than the wire's time constant."""
-            aw, slope = a(lw), a.slope_at(lw)
-            q = i2 * r20m
-            ls3 = ls * ls * ls
-            a11 = (q * slope - g) / c_w
-            a12 = g / c_w
-            a21 = g / c_s
-            a22 = -(g + 4.0 * k_s * ls3) / c_s
-            c1 = q * (aw - slope * lw) / c_w
-            c2 = (-k_s * (ls3 * ls - ta4) + 4.0 * k_s * ls3 * ls) / c_s
-            root = sqrt(0.25 * (a11 - a22) ** 2 + a12 * a21)
-            l1 = 0.5 * (a11 + a22) + root
-            l2 = l1 - 2.0 * root
-            f1, f2 = phi(l1 * h), phi(l2 * h)
-            p0 = (l1 * f2 - l2 * f1) / (l1 - l2)
-            p1 = (f1 - f2) / (l1 - l2)
-            dw = a11 * tw + a12 * ts + c1
-            ds = a21 * tw + a22 * ts + c2
-            return (tw + h * (p0 * dw + p1 * (a11 * dw + a12 * ds)),
-                    ts + h * (p0 * ds + p1 * (a21 * dw + a22 * ds)))
+        """(step(i2, h), resistance(), state) for a caller that drives the
+        model step by step (the circuits room); state is the (wire, sleeve,
+        exposed) temperatures, which the caller may save and restore."""
+        c = self.packed()
+        tab = self._table()
+        state = np.full(3, self.t_amb_k if t0_k is None else t0_k)
+        step_fn, resist = stepper.step, stepper.resistance
 
         def step(i2, h):
-            tw, ts, tx = state
-            first = coupled(tw, ts, tw, ts, i2, h)
-            # second pass linearised about the step's midpoint
-            nw, ns = coupled(tw, ts, 0.5 * (tw + first[0]), 0.5 * (ts + first[1]), i2, h)
-            if r20x:
-                lx = tx
-                q = i2 * r20x
-                for _ in range(2):  # exposed share: the same two passes, one node
-                    lx3 = lx * lx * lx
-                    lin = (4.0 * k_x * lx3 - q * a.slope_at(lx)) / c_x
-                    rate = (q * a(lx) - k_x * (lx3 * lx - ta4)) / c_x - lin * (tx - lx)
-                    nx = tx + h * phi(-lin * h) * rate
-                    lx = 0.5 * (tx + nx)
-                tx = nx
-            state[0], state[1], state[2] = nw, ns, tx
+            step_fn(state, i2, h, c, *tab)
+
+        def resistance():
+            return resist(state, c, *tab)
         return step, resistance, state
 
     def resistance_under_current(self, edges: np.ndarray, i2: np.ndarray,
                                  t0_k: float | None = None) -> np.ndarray:
         """Mean resistance over each interval edges[k]..edges[k+1] when the
         measured mean squared current i2[k] flows."""
-        step, resistance, _ = self._stepper(t0_k)
-        out = np.empty(len(i2))
-        r_prev = resistance()
-        h = np.diff(edges)
-        for k in range(len(i2)):
-            step(float(i2[k]), float(h[k]))
-            r = resistance()
-            out[k] = 0.5 * (r_prev + r)
-            r_prev = r
-        return out
+        return stepper.under_current(np.asarray(edges, float), np.asarray(i2, float),
+                                     self.packed(), *self._table(),
+                                     self.t_amb_k if t0_k is None else t0_k)
 
     def in_circuit(self, v_supply: float, r_series: float, t_end: float = 120.0,
                    n: int = 400, t_first: float = 1e-5, t0_k: float | None = None):
         """Switch on behind a supply of v_supply volts and a series resistance,
         from cold (or from t0_k kelvin). Returns (t, heater resistance,
         current, heater voltage)."""
-        step, resistance, state = self._stepper(t0_k)
         t = np.concatenate([[0.0], np.geomspace(t_first, t_end, n)])
-        r = np.empty(len(t))
-        r[0] = resistance()
-        for k in range(1, len(t)):
-            h = t[k] - t[k - 1]
-            # trial step with the current at the start, then the real one with
-            # the current at the mean of the start and trial resistances
-            saved = list(state)
-            r0 = resistance()
-            i0 = v_supply / (r_series + r0)
-            step(i0 * i0, h)
-            i_mid = v_supply / (r_series + 0.5 * (r0 + resistance()))
-            state[:] = saved
-            step(i_mid * i_mid, h)
-            r[k] = resistance()
+        r = stepper.in_circuit(t, float(v_supply), float(r_series), self.packed(),
+                               *self._table(), self.t_amb_k if t0_k is None else t0_k)
         i = v_supply / (r_series + r)
         return t, r, i, i * r
+
+
+def hot_temperature(ratio, k: float):
+    """The wire temperature of a resistance ratio against 20 C (real or
+    complex: a complex ratio carries its derivative, the inverse of the
+    table's slope there)."""
+    t = float(HeaterWire(k).temperature(ratio.real))
+    if isinstance(ratio, complex) and ratio.imag:
+        t += 1j * ratio.imag / fast_ratio(k).slope_at(t)
+    return t
+
+
+def derived(r20, k, t_amb_k, r_hot, p_hot, dt_ws, tau_w, tau_s, f, tau_x):
+    """The model's constants in the stepper's order (stepper.PACK), from its
+    parameters; real or complex (the complex step of the fit's Jacobian)."""
+    t_hot = hot_temperature(r_hot / r20, k)
+    ta = t_amb_k
+    t_s = t_hot - dt_ws
+    if t_s.real < ta + 20.0:
+        t_s = ta + 20.0 + 0.0 * t_s
+    p_w = (1.0 - f) * p_hot
+    g = p_w / (t_hot - t_s)
+    k_s = p_w / (t_s ** 4 - ta ** 4)
+    c_w = tau_w * g
+    c_s = tau_s * 4.0 * k_s * t_s ** 3
+    if f.real > 0:
+        k_x = f * p_hot / (t_hot ** 4 - ta ** 4)
+        c_x = tau_x * 4.0 * k_x * t_hot ** 3
+    else:
+        k_x, c_x = 0.0 * f, 1.0 + 0.0 * f
+    return [g, k_s, c_w, c_s, k_x, c_x, ta ** 4 + 0.0 * f, r20 * (1.0 - f), r20 * f]
 
 
 # fitting ------------------------------------------------------------------
@@ -255,18 +216,34 @@ def fit(b: Binned, r20: float, k: float, t_amb_k: float, r_end: float, v_end: fl
              "tau_x": 0.1}
     if start is not None:
         guess.update({n: getattr(start, n) for n in ("r_hot", "dt_ws", "tau_w", "tau_s")})
-    t0_k = None
-
     def make(x):
         p = dict(zip(names, np.exp(x)))
         return ThermalModel(r20=r20, k=k, t_amb_k=t_amb_k, p_hot=v_end ** 2 / p["r_hot"], **p)
 
+    tab = fast_ratio(k)
+    tab = (tab.table, tab.slopes, tab.t0, tab.step)
+    edges, i2 = np.asarray(b.edges, float), np.asarray(b.i2, float)
+
     def residual(x):
-        m = make(x)
-        return (m.resistance_under_current(b.edges, b.i2, t0_k) - b.r) / b.sigma
+        return (stepper.under_current(edges, i2, make(x).packed(), *tab, t_amb_k) - b.r) \
+            / b.sigma
+
+    def jacobian(x):
+        """Exact derivatives by the complex step (stepper's module doc)."""
+        rows = []
+        for j in range(len(x)):
+            p = dict(zip(names, np.exp(x.astype(complex))))
+            p[names[j]] = p[names[j]] * np.exp(1j * stepper.COMPLEX_STEP)
+            p = {n: complex(v) for n, v in p.items()}
+            p.setdefault("f", 0.0)
+            p.setdefault("tau_x", 0.1)
+            rows.append(derived(r20, k, t_amb_k, p_hot=v_end ** 2 / p["r_hot"], **p))
+        d = stepper.under_current_jacobian(edges, i2, np.array(rows, complex), *tab, t_amb_k)
+        return d / b.sigma[:, None]
 
     x0 = np.log([min(max(guess[n], lo[n] * 1.01), hi[n] * 0.99) for n in names])
-    res = least_squares(residual, x0, bounds=(np.log([lo[n] for n in names]),
-                                              np.log([hi[n] for n in names])),
+    res = least_squares(residual, x0, jac=jacobian,
+                        bounds=(np.log([lo[n] for n in names]), np.log([hi[n] for n in names])),
                         x_scale=1.0, xtol=1e-4, ftol=1e-6, max_nfev=400)
-    return Fit(make(res.x), float(np.sum(res.fun ** 2)), len(b.r), len(names), res.nfev)
+    return Fit(make(res.x), float(np.sum(res.fun ** 2)), len(b.r), len(names),
+               res.nfev + len(names) * res.njev)

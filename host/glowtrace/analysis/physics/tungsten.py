@@ -134,7 +134,8 @@ class HeaterWire:
 
 class FastRatio:
     """ratio(T) for scalar use in tight loops (the thermal model): the same
-    piecewise-linear table, precomputed on a 10 K grid, pure Python."""
+    piecewise-linear table, precomputed on a 10 K grid; as Python lists for
+    scalar calls, as arrays (table, slopes) for the compiled stepper."""
 
     def __init__(self, wire: HeaterWire, t0: float = 150.0, t1: float = 3600.0,
                  step: float = 10.0):
@@ -144,6 +145,7 @@ class FastRatio:
         self.r = [float(x) for x in r]
         self.slope = [float(x) for x in np.diff(r) / step] + [float((r[-1] - r[-2]) / step)]
         self.n = len(self.r) - 1
+        self.table, self.slopes = np.array(self.r), np.array(self.slope)
 
     def slope_at(self, t: float) -> float:
         i = int((t - self.t0) / self.step)
