@@ -1,13 +1,15 @@
 """History-scoring benchmark (not a test):
-    .venv/bin/python bench/history_bench.py [--tubes 10000] [--per-tube 10] [--no-samples]
-Builds a logbook of tubes x captures (default 10k tubes, 100k captures) in a
-temporary folder, then prints the time to assess one tube (median of 50
-tubes) and the whole fleet, and the database size.
+    .venv/bin/python bench/history_bench.py [--tubes 1000,10000,100000] [--per-tube 10]
+                                            [--samples]
+For each fleet size, builds a logbook of tubes x captures in a temporary
+folder, then prints the time to assess one tube (median of 50 tubes, each in
+a fresh connection, as one `glowtrace history` would; the first of them after
+the build pays for the type's figures, the rest read them kept), and the
+whole fleet, and the database size: the growth with the fleet is visible.
 
-Each capture row is stored as glowtrace stores one: its capture record, raw
-samples (one real compressed capture's samples, reused, so the size is
-realistic; --no-samples leaves them out), its analysis document and its
-section_metrics row. Metric values are drawn around a 12AX7-like heater with
+Each capture row is stored as glowtrace stores one: its capture record, its
+analysis document and its section_metrics row, and with --samples one real
+compressed capture's samples (reused, so the size is realistic). Metric values are drawn around a 12AX7-like heater with
 noise, some tubes drifting, some captures warm."""
 
 import argparse
@@ -26,7 +28,8 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT / "host"))
 sys.path.insert(0, str(ROOT / "tests"))
 
-from glowtrace import config
+from glowtrace import config  # noqa: E402
+from glowtrace.analysis import ANALYSIS_VERSION  # noqa: E402
 from glowtrace.judgement import scoring  # noqa: E402
 from glowtrace.logbook.store import Store, metric_rows  # noqa: E402
 
@@ -51,12 +54,12 @@ def analysis_doc(r20, i_hot, flash, warm, ambient):
          "rated_peak_current_a": 6.3 / r20, "rated_warmup_90_s": 10.1,
          "series_warmup_s": 23.5, "rated_volts": 6.3, "rated_amps": i_hot,
          "ambient_c": ambient, "warnings": ["not a cold start: still warm"] if warm else [],
-         "analysis_version": "1.0",
+         "analysis_version": ANALYSIS_VERSION,
          "thermal_model": {"r20": r20, "k": 1.0, "t_amb_k": ambient + 273.15,
                            "r_hot": 42.0, "p_hot": 0.95, "dt_ws": 149.0, "tau_w": 0.5,
                            "tau_s": 3.5, "f": flash, "tau_x": 0.12, "fit_rms": 0.8,
                            "fit_evaluations": 5, "model": "wire-sleeve-exposed/1"}}
-    return {"analysis_version": "1.0", "sections": {"A": m}, "section_imbalance": None}
+    return {"analysis_version": ANALYSIS_VERSION, "sections": {"A": m}, "section_imbalance": None}
 
 
 def build(db_path: Path, n_tubes: int, per_tube: int, samples: bool) -> float:
@@ -88,49 +91,59 @@ def build(db_path: Path, n_tubes: int, per_tube: int, samples: bool) -> float:
                              "0.1.0", "glowsim://", amb, 11500, 260, "{}", "{}", "[]", "{}",
                              "null", "{}", "tester"])
                 smp.append([u, "delta16-planes-lzma-v1", '["ia","ib","v"]', 11500, blocks, blob])
-                ana.append([u, "1.0", now, json.dumps(doc)])
-                met += [list(r.values()) for r in metric_rows(u, "1.0", doc, label, at, True)]
+                ana.append([u, ANALYSIS_VERSION, now, json.dumps(doc)])
+                met += metric_rows(u, ANALYSIS_VERSION, doc, label, at, True)
             conn.executemany("INSERT INTO captures VALUES (" + ",".join("?" * 22) + ")", caps)
             conn.executemany("INSERT INTO capture_samples VALUES (?,?,?,?,?,?)", smp)
             conn.executemany("INSERT INTO analyses VALUES (?,?,?,?)", ana)
-            cols = len(met[0])
-            conn.executemany(f"INSERT INTO section_metrics VALUES ({','.join('?' * cols)})", met)
+            names = list(met[0])
+            conn.executemany(f"INSERT INTO section_metrics ({', '.join(names)}) VALUES "
+                             f"({', '.join('?' * len(names))})", [list(r.values()) for r in met])
             if n % 1000 == 999:
                 print(f"  built {n + 1} tubes", file=sys.stderr)
     store.close()
     return time.perf_counter() - t0
 
 
-def main():
-    ap = argparse.ArgumentParser(description="history scoring benchmark")
-    ap.add_argument("--tubes", type=int, default=10000)
-    ap.add_argument("--per-tube", type=int, default=10)
-    ap.add_argument("--no-samples", action="store_true")
-    args = ap.parse_args()
-    cfg = config.load(ROOT / "host" / "glowtrace" / "data" / "scoring.toml")
+def one_size(n_tubes: int, per_tube: int, samples: bool, cfg: dict) -> dict:
     with tempfile.TemporaryDirectory() as d:
         db = Path(d) / "fleet.db"
-        built = build(db, args.tubes, args.per_tube, not args.no_samples)
+        built = build(db, n_tubes, per_tube, samples)
         size = os.path.getsize(db)
-        n = args.tubes * args.per_tube
-        print(f"database: {args.tubes} tubes, {n} captures, {size / 1e6:,.1f} MB "
-              f"({size / n / 1e3:.1f} kB per capture{', samples included' if not args.no_samples else ', no samples'}); built in {built:.0f} s")
-        with Store(db) as store:
-            times = []
-            picks = random.Random(1).sample(range(args.tubes), 50)
-            drifting = 0
-            for p in picks:
-                t0 = time.perf_counter()
+        times = []
+        picks = random.Random(1).sample(range(n_tubes), min(50, n_tubes))
+        drifting = 0
+        for p in picks:
+            t0 = time.perf_counter()
+            with Store(db) as store:
                 r = scoring.assess_tube(store, f"BN-{p:05d}", cfg)
-                times.append(time.perf_counter() - t0)
-                drifting += r["drifting"]
-            print(f"assess one tube: median {1000 * statistics.median(times):.1f} ms, "
-                  f"max {1000 * max(times):.1f} ms (50 tubes, {drifting} drifting)")
+            times.append(time.perf_counter() - t0)
+            drifting += r["drifting"]
+        with Store(db) as store:
             t0 = time.perf_counter()
             fleet = scoring.assess_fleet(store, cfg)
             elapsed = time.perf_counter() - t0
-            print(f"assess the whole fleet: {elapsed:.2f} s for {len(fleet)} tubes "
-                  f"({sum(f['drifting'] for f in fleet)} drifting)")
+        return {"tubes": n_tubes, "captures": n_tubes * per_tube, "mb": size / 1e6,
+                "built_s": built, "first_ms": 1000 * times[0],
+                "one_ms": 1000 * statistics.median(times[1:]),
+                "fleet_s": elapsed, "fleet_drifting": sum(f["drifting"] for f in fleet)}
+
+
+def main():
+    ap = argparse.ArgumentParser(description="history scoring benchmark")
+    ap.add_argument("--tubes", default="1000,10000,100000",
+                    help="fleet sizes, comma-separated")
+    ap.add_argument("--per-tube", type=int, default=10)
+    ap.add_argument("--samples", action="store_true", help="store raw samples too (size)")
+    args = ap.parse_args()
+    cfg = config.load(ROOT / "host" / "glowtrace" / "data" / "scoring.toml")
+    print("tubes    captures   logbook   one tube (first / kept)   fleet     per tube")
+    for n in (int(x) for x in args.tubes.split(",")):
+        r = one_size(n, args.per_tube, args.samples, cfg)
+        print(f"{r['tubes']:>7,} {r['captures']:>10,} {r['mb']:>7.0f} MB "
+              f"{r['first_ms']:>9.1f} / {r['one_ms']:.2f} ms {r['fleet_s']:>11.2f} s "
+              f"{1e6 * r['fleet_s'] / r['tubes']:>7.0f} us   ({r['fleet_drifting']} drifting; "
+              f"built in {r['built_s']:.0f} s)", flush=True)
 
 
 if __name__ == "__main__":

@@ -1,5 +1,6 @@
 """The SQLite logbook: lossless samples, migrations, whole-or-nothing writes."""
 
+import dataclasses
 import sqlite3
 
 import numpy as np
@@ -155,3 +156,71 @@ def test_killed_writer_leaves_database_consistent(db_path, tmp_path):
         assert n >= 5 and s.db["capture_samples"].count == n
         for row in s.list_captures():
             assert s.load_capture(row["uuid"]).n_sets == 3000
+
+
+def _analysis(version, hot):
+    sec = {"cold_start_ok": True, "warnings": [], "cold_resistance_20c_ohm": 6.2,
+           "rated_hot_current_a": hot, "hot_current_a": hot}
+    return {"analysis_version": version, "sections": {"A": sec}}
+
+
+def _current(s, uuid):
+    return s.db.execute("SELECT version FROM section_metrics WHERE capture_uuid = ? "
+                        "AND current = 1", [uuid]).fetchall()
+
+
+def test_newest_analysis_is_marked_current_by_the_logbook(db_path):
+    # versions compare as numbers ("1.10" after "1.9"); deleting the newest
+    # makes the one before it current again, whoever deletes it
+    with Store(db_path) as s:
+        uuid = s.save_capture(_raw([Block(1, 0, 0, 3, 1, 1, 0, 100, b"\0" * 6)]))
+        s.save_analysis(uuid, _analysis("1.10", 0.15))
+        s.save_analysis(uuid, _analysis("1.9", 0.16))
+        assert _current(s, uuid) == [("1.10",)]
+        with s.transaction() as conn:
+            conn.execute("DELETE FROM section_metrics WHERE version = '1.10'")
+        assert _current(s, uuid) == [("1.9",)]
+
+
+def test_type_figures_are_kept_until_the_logbook_changes(db_path, monkeypatch):
+    from glowtrace.analysis import ANALYSIS_VERSION
+    from glowtrace.judgement import scoring
+    with Store(db_path) as s:
+        for k, hot in enumerate((0.150, 0.152, 0.149)):  # three tubes of the type
+            raw = dataclasses.replace(_raw([Block(1, 0, 0, 3, 1, 1, 0, 100, b"\0" * 6)]),
+                                      tube=f"T{k}")
+            s.save_analysis(s.save_capture(raw, tube_type="12AX7"), _analysis(ANALYSIS_VERSION, hot))
+        first = scoring.type_figures(s, "12AX7")
+        assert list(first.population["rated_hot_current_a"]) == [0.149, 0.150, 0.152]
+        computed = []
+        monkeypatch.setattr(scoring, "_figures",
+                            lambda rows, real=scoring._figures: computed.append(1) or real(rows))
+        kept = scoring.type_figures(s, "12AX7")  # unchanged logbook: read back, not computed
+        assert computed == [] and kept.noise_raw == first.noise_raw
+        assert list(kept.population["rated_hot_current_a"]) == [0.149, 0.150, 0.152]
+        uuid = s.save_capture(_raw([Block(1, 0, 0, 3, 1, 1, 0, 100, b"\0" * 6)]),
+                              tube_type="12AX7")
+        s.save_analysis(uuid, _analysis(ANALYSIS_VERSION, 0.2))
+        again = scoring.type_figures(s, "12AX7")
+        assert computed == [1] and 0.2 in list(again.population["rated_hot_current_a"])
+
+
+def test_schema_5_logbook_gains_the_current_flag(db_path):
+    # a logbook written before migration 6, with two analysis versions of a
+    # capture: the migration marks the newest current
+    with Store(db_path) as s:
+        uuid = s.save_capture(_raw([Block(1, 0, 0, 3, 1, 1, 0, 100, b"\0" * 6)]))
+        s.save_analysis(uuid, _analysis("2.0", 0.15))
+        s.save_analysis(uuid, _analysis("2.10", 0.15))
+        with s.transaction() as conn:  # back to schema 5
+            for name in ("sm_inserted", "sm_deleted", "sm_updated", "tubes_changed",
+                         "tubes_inserted", "tubes_deleted"):
+                conn.execute(f"DROP TRIGGER {name}")
+            conn.execute("DROP TABLE logbook_generation")
+            conn.execute("DROP TABLE scoring_cache")
+            conn.execute("DROP INDEX idx_section_metrics_current_tube_section_at")
+            conn.execute("ALTER TABLE section_metrics DROP COLUMN current")
+            conn.execute("DELETE FROM schema_migrations WHERE version = 6")
+    with Store(db_path) as s:
+        assert s.schema_version() == store_mod.LATEST
+        assert _current(s, uuid) == [("2.10",)]

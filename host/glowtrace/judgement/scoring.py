@@ -233,9 +233,7 @@ def worst(statuses) -> str:
 
 # loading ------------------------------------------------------------------
 _ROWS_SQL = """
-SELECT s.* FROM section_metrics s
-WHERE s.version = (SELECT max(version COLLATE analysis_version) FROM section_metrics x
-                   WHERE x.capture_uuid = s.capture_uuid AND x.section = s.section)
+SELECT s.* FROM section_metrics s WHERE s.current = 1
 {where} ORDER BY s.tube, s.section, s.at, s.capture_uuid"""
 
 
@@ -251,35 +249,83 @@ def load_rows(store: Store, tube: str | None = None) -> dict:
     return out
 
 
-def type_noise_of(store: Store, type_name: str, cfg: dict) -> dict:
-    """type_noise for one type, read lean: the scored rows' metric columns
-    as tuples, in time order per tube section (a history needs only this)."""
+# the figures a tube is placed among its type by (against_type)
+PLACED_BY = ("rated_hot_current_a", "cold_resistance_20c_ohm")
+
+
+@dataclass
+class TypeFigures:
+    """What a tube is judged against from its type: the noise pooled over
+    its tubes, raw per metric (sigma, degrees of freedom), and the newest
+    scored values of each of its tube sections (sorted) for PLACED_BY."""
+    noise_raw: dict
+    population: dict
+
+    def noise(self, cfg: dict) -> dict:
+        least = cfg["charts"]["pool_min_df"]
+        return {m: (s if df >= least else None) for m, (s, df) in self.noise_raw.items()}
+
+    def pack(self) -> tuple[str, bytes]:
+        counts = [len(self.population[m]) for m in PLACED_BY]
+        values = np.concatenate([self.population[m] for m in PLACED_BY])
+        return json.dumps({"noise": self.noise_raw, "counts": counts}), values.tobytes()
+
+    @classmethod
+    def unpack(cls, noise: str, population: bytes) -> "TypeFigures":
+        d = json.loads(noise)
+        values = np.frombuffer(population, dtype=float)
+        bounds = np.cumsum([0] + d["counts"])
+        return cls({m: tuple(v) for m, v in d["noise"].items()},
+                   {m: values[bounds[k]:bounds[k + 1]] for k, m in enumerate(PLACED_BY)})
+
+
+def type_figures(store: Store, type_name: str) -> TypeFigures:
+    """A type's figures, computed once and kept in the logbook until it
+    changes (logbook_generation): one query over the type's scored rows."""
+    kept = store.scoring_cache(type_name, ANALYSIS_VERSION)
+    if kept is not None:
+        return TypeFigures.unpack(*kept)
     cols = ", ".join(METRICS)
-    cur = store.db.execute(
-        f"SELECT s.tube, s.section, {cols} FROM section_metrics s WHERE s.scored = 1 "
-        "AND s.version = ? AND s.tube IN (SELECT label FROM tubes WHERE type = ?) "
-        "ORDER BY s.tube, s.section, s.at", [ANALYSIS_VERSION, type_name])
-    series: dict = {}
-    for r in cur.fetchall():
-        series.setdefault((r[0], r[1]), []).append(dict(zip(METRICS, r[2:]), scored=1))
-    return type_noise(list(series.values()), cfg)
+    with store.snapshot():
+        generation = store.generation()
+        cur = store.db.execute(
+            f"SELECT s.tube, s.section, {cols} FROM section_metrics s WHERE s.current = 1 "
+            "AND s.scored = 1 AND s.version = ? AND s.tube IN "
+            "(SELECT label FROM tubes WHERE type = ?) ORDER BY s.tube, s.section, s.at",
+            [ANALYSIS_VERSION, type_name])
+        series: dict = {}
+        for r in cur.fetchall():
+            series.setdefault((r[0], r[1]), []).append(r[2:])
+    figures = _figures(list(series.values()))
+    store.keep_scoring_cache(type_name, ANALYSIS_VERSION, generation, *figures.pack())
+    return figures
+
+
+def _figures(section_series: list[list[tuple]]) -> TypeFigures:
+    """section_series: per tube section, its scored rows' METRICS in time order."""
+    noise, population = {}, {}
+    for k, m in enumerate(METRICS):
+        series = []
+        for rows in section_series:
+            vals = [r[k] for r in rows if r[k] is not None]
+            if m != "flash_index":
+                vals = [math.log(v) for v in vals if v > 0]
+            series.append(vals)
+        sigma, df = charts.pooled_sigma(series)
+        noise[m] = (sigma, df)
+        if m in PLACED_BY:
+            newest = [rows[-1][k] for rows in section_series if rows and rows[-1][k] is not None]
+            population[m] = np.sort(np.array(newest, dtype=float))
+    return TypeFigures(noise, population)
 
 
 def type_noise(section_series: list[list[dict]], cfg: dict) -> dict:
     """Per metric, the noise pooled over the scored captures of every tube
     section of a type (charts.pooled_sigma on ln x; flash index absolute), or
-    None below the configured degrees of freedom."""
-    out = {}
-    for m in METRICS:
-        series = []
-        for rows in section_series:
-            vals = [r[m] for r in rows if r["scored"] and r[m] is not None]
-            if m != "flash_index":
-                vals = [math.log(v) for v in vals if v > 0]
-            series.append(vals)
-        sigma, df = charts.pooled_sigma(series)
-        out[m] = sigma if df >= cfg["charts"]["pool_min_df"] else None
-    return out
+    None below the configured degrees of freedom. section_series: rows as
+    dicts, in time order per tube section (the scored ones count)."""
+    rows = [[tuple(r[m] for m in METRICS) for r in rs if r["scored"]] for rs in section_series]
+    return _figures(rows).noise(cfg)
 
 
 def load_baselines(store: Store, tube: str | None = None) -> dict:
@@ -288,31 +334,13 @@ def load_baselines(store: Store, tube: str | None = None) -> dict:
             store.db.execute(sql, [tube] if tube else []).fetchall()}
 
 
-def type_population(store: Store, type_name: str) -> dict:
-    """Latest scored values of every tube section of a type, per metric
-    (newest analysis version; SQLite takes the bare columns from the row
-    with max(at))."""
-    cols = ", ".join(METRICS)
-    rows = store.db.execute(
-        f"SELECT tube, section, max(at), {cols} FROM section_metrics "
-        "WHERE scored = 1 AND version = (SELECT max(version COLLATE analysis_version) "
-        "FROM section_metrics) "
-        "AND tube IN (SELECT label FROM tubes WHERE type = ?) GROUP BY tube, section",
-        [type_name]).fetchall()
-    return {m: [r[3 + k] for r in rows if r[3 + k] is not None] for k, m in enumerate(METRICS)}
-
-
-def _population(rows) -> dict:
-    """Per metric, the newest value of each tube section among these rows
-    (they come in time order)."""
-    latest = {(r["tube"], r["section"]): r for r in rows}
-    return {m: [r[m] for r in latest.values() if r[m] is not None] for m in METRICS}
-
-
-def percentile(value: float, population: list[float]) -> float:
-    """Share of the population at or below value, 0-100 (mid-rank for ties)."""
+def percentile(value: float, population) -> float:
+    """Share of the population at or below value, 0-100 (mid-rank for ties).
+    population: sorted ascending (TypeFigures keeps it so)."""
     p = np.asarray(population, float)
-    return float(100.0 * ((p < value).sum() + 0.5 * (p == value).sum()) / len(p))
+    below = int(np.searchsorted(p, value, "left"))
+    at_or_below = int(np.searchsorted(p, value, "right"))
+    return float(100.0 * (below + 0.5 * (at_or_below - below)) / len(p))
 
 
 # tubes --------------------------------------------------------------------
@@ -389,8 +417,7 @@ def against_type(result: dict, sections: dict, tube_type, cfg: dict,
             for sec, row in latest.items():
                 if row:
                     out["percentile"][sec] = {
-                        m: percentile(row[m], population[m]) for m in
-                        ("rated_hot_current_a", "cold_resistance_20c_ohm")
+                        m: percentile(row[m], population[m]) for m in PLACED_BY
                         if row[m] is not None}
             out["population"] = n
     # series-string warm-up against the type's rated (controlled) warm-up time
@@ -455,9 +482,10 @@ def assess_tube(store: Store, label: str, cfg: dict, rows: dict | None = None) -
     tube = require_tube(store, label)
     if rows is None:
         rows = load_rows(store, label).get(label, {})
-    pop = type_population(store, tube["type"]) if tube["type"] else None
-    noise = type_noise_of(store, tube["type"], cfg) if tube["type"] else None
-    return assess(tube, rows, cfg, load_baselines(store, label), pop, noise)
+    figures = type_figures(store, tube["type"]) if tube["type"] else None
+    return assess(tube, rows, cfg, load_baselines(store, label),
+                  figures.population if figures else None,
+                  figures.noise(cfg) if figures else None)
 
 
 def history(store: Store, label: str, cfg: dict) -> dict:
@@ -494,19 +522,11 @@ def history(store: Store, label: str, cfg: dict) -> dict:
 def assess_fleet(store: Store, cfg: dict, type_name: str | None = None,
                  owner: str | None = None) -> list[dict]:
     from ..logbook.records import list_tubes
-    everyone = list_tubes(store)
-    tubes = list_tubes(store, owner=owner, type_name=type_name) if owner or type_name \
-        else everyone
+    tubes = list_tubes(store, owner=owner, type_name=type_name)
     rows = load_rows(store)
     baselines = load_baselines(store)
-    by_type: dict = {}
-    for t in everyone:
-        by_type.setdefault(t["type"], []).append(t["label"])
-    pops = {tname: _population(r for lbl in labels for sec_rows in rows.get(lbl, {}).values()
-                               for r in sec_rows if r["scored"])
-            for tname, labels in by_type.items()}
-    noises = {tname: type_noise([r for lbl in labels for r in rows.get(lbl, {}).values()], cfg)
-              for tname, labels in by_type.items()}
-    return [assess(t, rows.get(t["label"], {}), cfg, baselines, pops.get(t["type"]),
-                   noises.get(t["type"]))
+    figures = {t: type_figures(store, t) for t in {t["type"] for t in tubes if t["type"]}}
+    return [assess(t, rows.get(t["label"], {}), cfg, baselines,
+                   figures[t["type"]].population if t["type"] else None,
+                   figures[t["type"]].noise(cfg) if t["type"] else None)
             for t in tubes]

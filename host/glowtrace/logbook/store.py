@@ -146,6 +146,43 @@ def _m5_rated_figures(db: sqlite_utils.Database) -> None:
         db.execute(f"ALTER TABLE section_metrics ADD COLUMN {c} REAL")
 
 
+def _m6_scoring_keys(db: sqlite_utils.Database) -> None:
+    """What scoring a fleet needs kept by the logbook itself, so no query
+    has to find the newest analysis or rescan a type:
+      - section_metrics.current: 1 on the newest analysis version of each
+        capture section (kept by triggers, whoever writes the rows);
+      - logbook_generation: a counter every change to section_metrics or
+        tubes moves on (triggers), the key of scoring_cache;
+      - scoring_cache: per type, its population and pooled noise, valid
+        while the generation it was computed at is current."""
+    db.execute("ALTER TABLE section_metrics ADD COLUMN current INTEGER NOT NULL DEFAULT 0")
+    db.execute(_MARK_CURRENT.format(where=""))
+    db["section_metrics"].create_index(["current", "tube", "section", "at"])
+    db.execute("CREATE TABLE logbook_generation (n INTEGER NOT NULL)")
+    db.execute("INSERT INTO logbook_generation VALUES (0)")
+    db["scoring_cache"].create({"type": str, "version": str, "generation": int, "noise": str,
+                                "population": bytes}, pk=("type", "version"))
+    newest = ("UPDATE section_metrics SET current = (version = (SELECT max(version COLLATE "
+              "analysis_version) FROM section_metrics x WHERE x.capture_uuid = {r}.capture_uuid "
+              "AND x.section = {r}.section)) WHERE capture_uuid = {r}.capture_uuid "
+              "AND section = {r}.section;")
+    bump = "UPDATE logbook_generation SET n = n + 1;"
+    for name, when, body in (
+            ("sm_inserted", "AFTER INSERT ON section_metrics", newest.format(r="NEW") + bump),
+            ("sm_deleted", "AFTER DELETE ON section_metrics", newest.format(r="OLD") + bump),
+            ("sm_updated", "AFTER UPDATE OF version, scored, tube, at ON section_metrics", bump),
+            ("tubes_changed", "AFTER UPDATE OF type, label ON tubes", bump),
+            ("tubes_inserted", "AFTER INSERT ON tubes", bump),
+            ("tubes_deleted", "AFTER DELETE ON tubes", bump)):
+        db.execute(f"CREATE TRIGGER {name} {when} BEGIN {body} END")
+
+
+_MARK_CURRENT = """UPDATE section_metrics SET current = (version = (
+    SELECT max(version COLLATE analysis_version) FROM section_metrics x
+    WHERE x.capture_uuid = section_metrics.capture_uuid AND x.section = section_metrics.section))
+    {where}"""
+
+
 # (version, name, function). Append only: never edit a released migration.
 MIGRATIONS = [
     (1, "initial: tubes, captures, capture_samples", _m1_initial),
@@ -153,6 +190,7 @@ MIGRATIONS = [
     (3, "owners, capture source, section metrics, baselines", _m3_records),
     (4, "calibrations of testers", _m4_calibrations),
     (5, "figures at rated conditions in section metrics", _m5_rated_figures),
+    (6, "current analysis flag, logbook generation, scoring cache", _m6_scoring_keys),
 ]
 LATEST = MIGRATIONS[-1][0]
 
@@ -245,6 +283,45 @@ class Store:
             if isinstance(e, sqlite3.DatabaseError):
                 raise self._error("cannot write to", e) from None
             raise
+
+    @contextmanager
+    def snapshot(self):
+        """Reads that must see one state of the logbook (a deferred
+        transaction: other programs may write meanwhile, unseen here)."""
+        conn = self.db.conn
+        conn.execute("BEGIN")
+        try:
+            yield conn
+        finally:
+            conn.execute("COMMIT")
+
+    # scoring cache (migration 6) -----------------------------------------
+    def generation(self) -> int:
+        """Moves on with every change to what scoring reads."""
+        return self.db.execute("SELECT n FROM logbook_generation").fetchone()[0]
+
+    def scoring_cache(self, type_name: str, version: str) -> tuple[str, bytes] | None:
+        """(noise, population) kept for a type, if the logbook has not
+        changed since."""
+        row = self.db.execute(
+            "SELECT noise, population FROM scoring_cache c, logbook_generation g "
+            "WHERE c.type = ? AND c.version = ? AND c.generation = g.n",
+            [type_name, version]).fetchone()
+        return (row[0], row[1]) if row else None
+
+    def keep_scoring_cache(self, type_name: str, version: str, generation: int, noise: str,
+                           population: bytes) -> None:
+        """Best effort, never waiting: a read-only or busy logbook is scored
+        again next time."""
+        self.db.conn.execute("PRAGMA busy_timeout = 0")
+        try:
+            with self.transaction() as conn:
+                conn.execute("INSERT OR REPLACE INTO scoring_cache VALUES (?, ?, ?, ?, ?)",
+                             [type_name, version, generation, noise, population])
+        except StoreError:
+            pass
+        finally:
+            self.db.conn.execute(f"PRAGMA busy_timeout = {int(self.timeout * 1000)}")
 
     def write_waiting(self, write, wait_s: float, on_busy=None):
         """Run write() (one transaction) and, while another program holds the
