@@ -1,8 +1,5 @@
 """Bad curves and bad files: a clear message or a warning, never a traceback."""
 
-import subprocess
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -14,7 +11,6 @@ from glowtrace.analysis.csvio import CurveFileError, read_curve, write_curve
 from curves import constant, first_order
 from simhelp import sim_tester
 
-GLOWTRACE = str(Path(sys.executable).parent / "glowtrace")
 
 
 def test_open_heater_curve():
@@ -126,19 +122,18 @@ def test_csv_errors(tmp_path, text, msg):
         read_curve(_csv(tmp_path, text))
 
 
-def test_cli_analyze_bad_files_exit_cleanly(tmp_path):
+def test_cli_analyze_bad_files_exit_cleanly(tmp_path, cli):
     cases = [tmp_path / "missing.csv",
              _csv(tmp_path, "a,b\n1,2\n", "cols.csv"),
              _csv(tmp_path, "\x00\x01binary", "bin.csv")]
     for p in cases:
-        r = subprocess.run([GLOWTRACE, "analyze", str(p)], capture_output=True, text=True)
-        assert r.returncode == 1, r.stderr
-        assert "glowtrace: error:" in r.stderr and "Traceback" not in r.stderr
+        rc, _, err = cli("analyze", p)
+        assert rc == 1, err
+        assert "glowtrace: error:" in err and "Traceback" not in err
     good = tmp_path / "good.csv"
     write_curve(good, first_order())
     for args in (["--type", "12AX9"], ["--rated-volts", "6.3"],
                  ["--type", "12AX7", "--rated-volts", "6.3", "--rated-amps", "0.3"],
                  ["--ambient-c", "400"]):
-        r = subprocess.run([GLOWTRACE, "analyze", str(good), *args], capture_output=True,
-                           text=True)
-        assert r.returncode in (1, 2) and "Traceback" not in r.stderr, (args, r.stderr)
+        rc, _, err = cli("analyze", good, *args)
+        assert rc in (1, 2) and "Traceback" not in err, (args, err)

@@ -33,14 +33,13 @@ def stored(tmp_path_factory):
     return db, raw
 
 
-def test_analyze_json_has_every_key(tmp_path):
+def test_analyze_json_has_every_key(tmp_path, cli):
     p = tmp_path / "scope.csv"
     write_curve(p, first_order(), "an oscilloscope export")
-    r = subprocess.run([GLOWTRACE, "analyze", str(p), "--json", "--ambient-c", "23",
-                        "--rated-volts", "6.3", "--rated-amps", "0.15", "--no-fit"],
-                       capture_output=True, text=True)
-    assert r.returncode == 0, r.stderr
-    m = json.loads(r.stdout)
+    rc, out, err = cli("analyze", p, "--json", "--ambient-c", "23", "--rated-volts", "6.3",
+                       "--rated-amps", "0.15", "--no-fit")
+    assert rc == 0, err
+    m = json.loads(out)
     assert set(KEYS) <= set(m)
     assert m["ambient_c"] == 23 and m["rated_volts"] == 6.3
 

@@ -61,7 +61,7 @@ def test_incomplete_capture_exits_nonzero_but_is_kept(tmp_path, capsys):
     assert json.loads(capsys.readouterr().out)[0]["complete"] == 0
 
 
-def test_bad_input_gets_a_message_not_a_traceback(tmp_path):
+def test_bad_input_gets_a_message_not_a_traceback(tmp_path, cli):
     cases = [
         ("show", "nonexistent", "--db", str(tmp_path / "none.db")),
         ("capture", "--port", "glowsim://?tube=NOPE", "--tube", "x", "--section", "A",
@@ -72,11 +72,11 @@ def test_bad_input_gets_a_message_not_a_traceback(tmp_path):
          "--db", str(tmp_path / "a.db")),
     ]
     for args in cases:
-        r = run(*args)
-        assert r.returncode == 1, (args, r.stderr)
-        assert "glowtrace: error:" in r.stderr and "Traceback" not in r.stderr, r.stderr
-    r = run("capture", "--tube", "x", "--section", "C")
-    assert r.returncode == 2 and "invalid choice" in r.stderr
+        rc, _, err = cli(*args)
+        assert rc == 1, (args, err)
+        assert "glowtrace: error:" in err and "Traceback" not in err, err
+    rc, _, err = cli("capture", "--tube", "x", "--section", "C")
+    assert rc == 2 and "invalid choice" in err
 
 
 def test_ports_lists_without_error():

@@ -156,7 +156,11 @@ def test_newer_or_locked_database_is_refused(capsys, tmp_path):
     try:
         old = store_mod.Store.__init__.__defaults__
         store_mod.Store.__init__.__defaults__ = (True, 0.2)
+        # readers go on while another program writes (write-ahead log); a
+        # write waits, then says who holds the logbook
         rc, _, err = gt(capsys, "tube", "list", "--db", str(db2))
+        assert rc == 0, err
+        rc, _, err = gt(capsys, "tube", "add", "LK-1", "--type", "12AX7", "--db", str(db2))
         assert rc == 1 and "locked by another program" in err
     finally:
         store_mod.Store.__init__.__defaults__ = old

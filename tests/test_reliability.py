@@ -26,11 +26,11 @@ from curves import heater
 from simhelp import sim_url
 
 GLOWTRACE = str(Path(sys.executable).parent / "glowtrace")
-HOLD_READ = """
+HOLD_WRITE = """
 import sqlite3, sys, time
 c = sqlite3.connect(sys.argv[1], isolation_level=None)
-c.execute("BEGIN")
-c.execute("SELECT count(*) FROM captures").fetchall()  # a reader's lock, held
+c.execute("BEGIN IMMEDIATE")  # another writer's lock, held (readers never block: WAL)
+c.execute("SELECT count(*) FROM captures").fetchall()
 print("holding", flush=True)
 time.sleep(float(sys.argv[2]))
 """
@@ -43,7 +43,7 @@ def gt(capsys, *argv):
 
 
 def _hold(db, seconds):
-    p = subprocess.Popen([sys.executable, "-c", HOLD_READ, str(db), str(seconds)],
+    p = subprocess.Popen([sys.executable, "-c", HOLD_WRITE, str(db), str(seconds)],
                          stdout=subprocess.PIPE, text=True)
     assert p.stdout.readline().strip() == "holding"
     return p
@@ -87,6 +87,24 @@ def test_store_busy_past_the_wait_raises_with_the_file(db_path):
     assert e.value.path.exists() and e.value.raw.n_sets > 100
 
 
+def _under_way(p, after_s=1.5):
+    """Wait until the capture process has started its simulated tester (its
+    micropython child), then after_s more: past the handshake, capturing.
+    Start-up time varies with the machine's load; a fixed sleep did not."""
+    deadline = time.monotonic() + 30
+    while time.monotonic() < deadline:
+        kids = Path(f"/proc/{p.pid}/task/{p.pid}/children")
+        for pid in (kids.read_text().split() if kids.exists() else []):
+            try:
+                if b"micropython" in Path(f"/proc/{pid}/cmdline").read_bytes():
+                    time.sleep(after_s)
+                    return
+            except OSError:
+                pass
+        time.sleep(0.05)
+    raise AssertionError("the capture never started its simulated tester")
+
+
 def _capture_process(db, *extra, url=None):
     return subprocess.Popen(
         [GLOWTRACE, "capture", "--port", url or sim_url(tube="12AX7", pace=1), "--tube", "H1",
@@ -103,7 +121,7 @@ def _stored(db):
 def test_a_closed_terminal_stores_the_partial_capture(db_path):
     """SIGHUP (the terminal closed) stops a capture as Ctrl-C does."""
     p = _capture_process(db_path)
-    time.sleep(3.0)  # under way (after start-up): the simulated heater runs in real time
+    _under_way(p)  # the simulated heater runs in real time
     p.send_signal(signal.SIGHUP)
     out, err = p.communicate(timeout=30)
     assert p.returncode == 130, err
@@ -118,7 +136,7 @@ def test_a_paused_host_gets_an_incomplete_unscored_capture(db_path):
     silence, and that curve, cut short for the bench's sake, is never taken
     for a whole one or scored."""
     p = _capture_process(db_path)
-    time.sleep(3.0)  # under way, after start-up and handshake
+    _under_way(p)
     p.send_signal(signal.SIGSTOP)
     time.sleep(3.0)  # longer than the tester's 2 s of allowed silence
     p.send_signal(signal.SIGCONT)

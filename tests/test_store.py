@@ -109,8 +109,13 @@ def test_locked_database_gives_clear_error(db_path):
     other = sqlite3.connect(db_path)
     other.execute("BEGIN EXCLUSIVE")
     try:
-        with pytest.raises(StoreError, match="locked by another program"):
-            Store(db_path, timeout=0.2)
+        # with the write-ahead log the logbook still opens and reads; a write waits,
+        # then says who holds it
+        with Store(db_path, timeout=0.2) as s, \
+                pytest.raises(StoreError, match="locked by another program"):
+            assert s.list_captures() == []
+            with s.transaction():
+                pass
     finally:
         other.rollback()
         other.close()
@@ -151,6 +156,10 @@ def test_killed_writer_leaves_database_consistent(db_path, tmp_path):
     os.kill(p.pid, signal.SIGKILL)
     p.wait()
     with Store(db_path) as s:
+        # the logbook runs a write-ahead log with synchronous=NORMAL: still
+        # whole-or-absent when the writer dies
+        assert s.db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+        assert s.db.execute("PRAGMA synchronous").fetchone()[0] == 1  # NORMAL
         assert s.db.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
         n = s.db["captures"].count
         assert n >= 5 and s.db["capture_samples"].count == n

@@ -108,13 +108,19 @@ def _rows(path: Path):
         raise CurveFileError(f"{path} is a directory, not a CSV file") from None
     except OSError as e:
         raise CurveFileError(f"{path}: cannot read it ({e.strerror})") from None
+    line_no = [0]
+
+    def data_lines():
+        for n, line in enumerate(f, 1):
+            if line.strip() and not line.lstrip().startswith("#"):
+                if "\x00" in line:
+                    raise CurveFileError(f"{path}, line {n}: not a text file")
+                line_no[0] = n
+                yield line
     with f:
         try:
-            for n, line in enumerate(f, 1):
-                if line.strip() and not line.lstrip().startswith("#"):
-                    if "\x00" in line:
-                        raise CurveFileError(f"{path}, line {n}: not a text file")
-                    yield n, next(csv.reader([line]))
+            for fields in csv.reader(data_lines()):  # one reader: not one per line
+                yield line_no[0], fields
         except UnicodeDecodeError as e:
             raise CurveFileError(f"{path}: not UTF-8 text (a binary file, or text in another "
                                  f"encoding: {e.reason} at byte {e.start})") from None

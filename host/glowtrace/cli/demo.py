@@ -23,7 +23,8 @@ def cmd_demo(args) -> int:
             ui.err.print("  calibrating the tester: socket empty, then a 4.7 ohm reference")
             return
         day = f"visit of {when[:10]}" if when else "today"
-        ui.err.print(f"  [{n}/{total}] {t.label} {t.tube_type} section {t.section}, {day}",
+        ui.err.print(f"  [{n}/{total}] {t.label} {t.tube_type} section {t.section}, {day}: "
+                     "captured and stored",
                      markup=False, highlight=False)
     t0 = time.monotonic()
     res = run_demo(db, progress)

@@ -61,7 +61,9 @@ def read_chunks(f, size: int = _IO_BYTES) -> Iterator[bytes]:
 def compress(src, dst) -> int:
     """LZMA (the .xz container, as lzma.compress writes it) from one binary
     file to another, chunk by chunk; returns the bytes written."""
-    comp = lzma.LZMACompressor()
+    # preset 1: noisy float64 rows barely compress further at 6 (5 % smaller,
+    # 2.6 times slower, measured on a 20k-row curve); any preset reads back
+    comp = lzma.LZMACompressor(preset=1)
     n = 0
     for chunk in read_chunks(src):
         n += dst.write(comp.compress(chunk))

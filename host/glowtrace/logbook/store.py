@@ -231,6 +231,7 @@ class Store:
             # autocommit mode: transactions are opened and closed explicitly
             conn = sqlite3.connect(self.path, timeout=timeout, isolation_level=None)
             conn.execute("PRAGMA foreign_keys = ON")
+            self._journal(conn)
             # `COLLATE analysis_version` wherever the newest analysis is chosen
             conn.create_collation("analysis_version", _version_cmp)
             self.db = sqlite_utils.Database(conn)
@@ -238,6 +239,18 @@ class Store:
             self._migrate()
         except sqlite3.DatabaseError as e:
             raise self._error("cannot use database", e) from None
+
+    def _journal(self, conn) -> None:
+        """Write-ahead log with synchronous=NORMAL: a commit is one write to
+        the log, without waiting for the disk, and still atomic (a crashed
+        program leaves each capture whole or absent; a power cut may lose the
+        last commits, never corrupt). A logbook in a folder we cannot write
+        keeps its journal as it is: WAL needs files beside it."""
+        if not os.access(self.path.parent, os.W_OK) or (
+                self.path.exists() and not os.access(self.path, os.W_OK)):
+            return
+        conn.execute("PRAGMA journal_mode = WAL")
+        conn.execute("PRAGMA synchronous = NORMAL")
 
     def _refuse_foreign(self) -> None:
         """Another program's SQLite file is not made into a logbook."""

@@ -77,6 +77,30 @@ class UserInterrupt(KeyboardInterrupt):
         self.off_confirmed = False
 
 
+def _take(tester, tube: str, section: str, params: dict | None, progress,
+          tube_type: str | None, started_at: str | None) -> RawCapture:
+    """The capture on a connected tester, checked for the type first; a
+    capture the user interrupted comes back with its reason."""
+    params = dict(params or {})
+    if tube_type:
+        kind = catalogue.load().get(tube_type)
+        # refuse before switching on if this tester cannot wire the type
+        check_for_tester(kind, section, tester.hello["frontend"])
+        if params.get("range") is None:  # from the type, on this tester's ranges
+            params["range"] = range_for(kind, tester.hello["frontend"])
+    if params.get("range") is None:
+        params["range"] = "low"
+    try:
+        raw = tester.capture(tube, section, params, progress)
+    except CaptureInterrupted as e:
+        raw = e.raw
+        raw.incomplete_reason = e.reason
+    mark_bench_trip(raw)
+    if started_at:
+        raw.started_at = started_at
+    return raw
+
+
 def run_capture(port_url: str, store: Store, tube: str, section: str,
                 params: dict | None = None, progress=None, tube_type: str | None = None,
                 notes: str | None = None, started_at: str | None = None,
@@ -85,23 +109,7 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
     its invented earlier visits). store_wait_s, on_busy: see store_or_keep."""
     with connect(port_url) as tester:
         try:
-            params = dict(params or {})
-            if tube_type:
-                kind = catalogue.load().get(tube_type)
-                # refuse before switching on if this tester cannot wire the type
-                check_for_tester(kind, section, tester.hello["frontend"])
-                if params.get("range") is None:  # from the type, on this tester's ranges
-                    params["range"] = range_for(kind, tester.hello["frontend"])
-            if params.get("range") is None:
-                params["range"] = "low"
-            try:
-                raw = tester.capture(tube, section, params, progress)
-            except CaptureInterrupted as e:
-                raw = e.raw
-                raw.incomplete_reason = e.reason
-            mark_bench_trip(raw)
-            if started_at:
-                raw.started_at = started_at
+            raw = _take(tester, tube, section, params, progress, tube_type, started_at)
             if raw.incomplete_reason == "interrupted by the user":
                 # the user wants out: heater off first, then store
                 tester.abort()
@@ -114,6 +122,18 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
             return raw
         finally:
             tester.abort()  # idempotent on the firmware: heater off, whatever state
+
+
+def capture_unstored(port_url: str, tube: str, section: str, params: dict | None = None,
+                     started_at: str | None = None) -> RawCapture:
+    """A capture taken and the tester left off, for a caller that stores it
+    itself (the demo, which runs its simulated testers side by side and
+    stores in order)."""
+    with connect(port_url) as tester:
+        try:
+            return _take(tester, tube, section, params, None, None, started_at)
+        finally:
+            tester.abort()
 
 
 def capture_into_logbook(db_path, port_url: str | None, tube: str, section: str,

@@ -4,7 +4,9 @@ database, with the same tubes' earlier visits laid down first so that the
 logbook has a history to judge. Shop, customers, equipment and tube labels
 are invented for this project."""
 
+import os
 import shutil
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
@@ -14,7 +16,7 @@ from .. import config
 from ..logbook import records
 from ..judgement import scoring
 from ..tester.convert import summary
-from .capture import run_capture
+from .capture import STORE_WAIT_S, analyze_after_storing, capture_unstored, store_or_keep
 from ..tester.sim import with_load
 from ..logbook.store import Store
 
@@ -77,6 +79,7 @@ def _record(store: Store) -> None:
                              notes=CUSTOMERS[t.owner].split(",")[0])
 
 
+SIDE_BY_SIDE = max(2, min(4, os.cpu_count() or 1))  # simulated testers at once
 TESTER = {"serial": "QW01"}  # the shop has one tester; every visit uses it
 
 
@@ -111,14 +114,21 @@ def run_demo(db_path: Path, progress=None) -> dict:
             jobs.append((t, dict(t.sim, seed=t.sim["seed"] * 100 + n, **change, **tester), when))
     jobs += [(t, dict(t.sim, **tester), None) for t in DEMO_TUBES]
     rows = []
-    with Store(db_path) as store:
+
+    def take(job):
+        t, sim, when = job
+        return capture_unstored(demo_url(sim), t.label, t.section,
+                                {"range": t.range, "max_s": 40}, started_at=when)
+    with Store(db_path) as store, ThreadPoolExecutor(SIDE_BY_SIDE) as pool:
         store.save_calibration(cal)
         _record(store)
-        for n, (t, sim, when) in enumerate(jobs, 1):
+        # the simulated testers run side by side (each its own micropython
+        # process); captures are stored and analysed in order as they come
+        for n, ((t, sim, when), raw) in enumerate(zip(jobs, pool.map(take, jobs)), 1):
             if progress:
                 progress(n, len(jobs), t, when)
-            raw = run_capture(demo_url(sim), store, t.label, t.section,
-                              {"range": t.range, "max_s": 40}, started_at=when)
+            store_or_keep(store, raw, None, None, STORE_WAIT_S)
+            raw.analysis = analyze_after_storing(store, raw)
             if when is None:
                 s = summary(raw)
                 s.update(type=t.tube_type, customer=t.owner)
