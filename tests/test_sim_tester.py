@@ -166,3 +166,27 @@ def test_a_host_that_stops_reading_cannot_hold_the_heater_on():
     # sees a gap: the capture can never be taken for a whole one
     assert t.link.stats.lost_frames > 0 or t.link.stats.bad_frames > 0
     assert not end or end[0]["dropped"] > 0
+
+
+@pytest.mark.parametrize("tube", ["EL34", "12BA6"])
+def test_a_capture_ends_when_the_current_has_settled(tube):
+    # the slowest heater preset and the fastest: the default end comes after
+    # the current is within 1 % of its final value (from a 120 s reference
+    # capture of the same heater that cannot end early), within 10 % of that
+    from glowtrace import catalogue
+    from glowtrace.analysis.analyze import analyze_capture
+    from glowtrace.tester.sockets import range_for
+    kind = catalogue.load().get(tube)
+
+    def capture(params):
+        with sim_tester(tube=tube, seed=7) as t:
+            raw = t.capture("T", "A", dict(params, range=range_for(kind, t.hello["frontend"])))
+        return raw, analyze_capture(raw, kind)["sections"]["A"]
+    _, ref = capture({"max_s": 120, "settle_band": 1e-6})
+    raw, own = capture({})
+    length = raw.end["off_us"] / 1e6
+    assert raw.end["reason"] == "settled"
+    assert ref["settle_1pct_s"] <= length <= 1.1 * ref["settle_1pct_s"], \
+        (length, ref["settle_1pct_s"])
+    assert own["settle_1pct_s"] is not None
+    assert not any("too short" in w for w in own["warnings"]), own["warnings"]

@@ -15,8 +15,8 @@ DEFAULTS = {
     "range": "low",
     "max_s": 60.0,
     "max_on_s": None,       # None: the board's own limit
-    "settle_band": 0.005,   # relative band the current must stay within
-    "settle_hold_s": 2.0,   # ... for this long
+    "settle_band": 0.01,    # relative band about the predicted final current
+    "settle_hold_s": 0.3,   # ... the current has been within for this long
     "settle_min_s": 3.0,    # never end before this
     "trip_a": None,         # None: 95 % of the range's full scale
     "open_a": None,         # None: 2 % of the range's full scale

@@ -140,8 +140,8 @@ def capture_summary(s: dict, details: bool = False, figures: dict | None = None)
         if p:
             rows.append(("settings", f"range {p.get('range', 'low')}, longest "
                                      f"{p.get('max_s', '-')} s, end when within "
-                                     f"{100 * p.get('settle_band', 0):g} % for "
-                                     f"{p.get('settle_hold_s', '-')} s"))
+                                     f"{100 * p.get('settle_band', 0):g} % of the final "
+                                     f"current for {p.get('settle_hold_s', '-')} s"))
         link = s.get("link") or {}
         if link:
             rows.append(("link", f"{link.get('frames')} frames, {link.get('bad_frames')} bad, "

@@ -171,10 +171,11 @@ def register(sub, common) -> None:
                         "type's inrush can reach the low range's trip, else low)")
     s.add_argument("--max-s", type=number(1, MAX_CAPTURE_S), default=60.0,
                    help=f"longest capture, s (1 to {MAX_CAPTURE_S:g}; default 60)")
-    s.add_argument("--settle-band", type=number(0, 0.49, above=True), default=0.005,
-                   help="relative band for the adaptive end (default 0.005)")
-    s.add_argument("--settle-hold-s", type=number(0, 60, above=True), default=2.0,
-                   help="time the current must stay in the band, s (default 2)")
+    s.add_argument("--settle-band", type=number(0, 0.49, above=True), default=0.01,
+                   help="the capture ends once the current is within this share of its "
+                        "predicted final value ... (default 0.01)")
+    s.add_argument("--settle-hold-s", type=number(0, 60, above=True), default=0.3,
+                   help="... and has been for this long, s (default 0.3)")
     s.add_argument("--busy-wait-s", type=number(0, 86400), default=60.0,
                    help="how long to wait for a logbook another program is using before "
                         "the capture is kept in a file for `glowtrace recover` (default 60)")
