@@ -35,6 +35,8 @@ class SimBoard:
         self.board_id = "sim-" + scenario.get("serial", "0001")
         self.reset_cause = scenario.get("reset_cause", "power_on")
         self.state_dir = scenario.get("state_dir")
+        # the link's use in the board's own time, for bench/link_bench.py
+        self.link_log = open(scenario["link_log"], "a") if scenario.get("link_log") else None
         self.calibration = {"source": "nominal", "gain": 1.0, "offset_codes": 0}
         if self.state_dir:
             try:
@@ -274,6 +276,9 @@ class SimBoard:
         goes first, so the host's decoder resynchronises at once."""
         if self.cut:
             data = b"\x00" + data
+        if self.link_log:
+            self.link_log.write("%d %d\n" % (int(self.t_us), len(data)))
+            self.link_log.flush()
         mv = memoryview(data)
         deadline = time.ticks_add(time.ticks_ms(), WRITE_WAIT_MS)
         while len(mv):

@@ -27,11 +27,11 @@ def test_capture_is_whole_and_timed():
     assert raw.complete and raw.end_reason == "settled"
     assert status["heater"] == 0 and status["state"] == "idle"
     t_us, sums, osm = raw.arrays()
-    assert (t_us[t_us < 0] >= -40000).all() and (t_us >= 0).sum() > 10000
+    assert (t_us[t_us < 0] >= -40000).all() and (t_us >= 0).sum() > 5000
     assert np.all(np.diff(t_us) > 0)
     dense = t_us[(t_us >= 0) & (t_us < 20000)]
     assert len(dense) >= 800  # >= 100 kS/s aggregate over 3 channels for 20 ms
-    assert set(np.unique(osm)) == {1, 4, 16}
+    assert set(np.unique(osm)) == {1, 8, 16}
 
 
 def test_trip_on_shorted_heater_within_1ms():
@@ -111,9 +111,9 @@ def test_intermittent_contact_shows_as_dropouts():
     with sim_tester(fault="intermittent", fault_section="A") as t:
         raw = t.capture("T", "A", {"max_s": 3, "settle_min_s": 10})
     c = to_physical(raw)
-    fast = (c.t_s > 0.02) & (c.t_s < 0.5)  # 100 us sets: the 4 ms opens show
+    fast = (c.t_s > 0.02) & (c.t_s < 0.5)  # 250 us sets: a 4 ms open is 16 of them
     i = c.amps["A"][fast]
-    assert (i < 0.01).sum() >= 40 and (i > 0.1).sum() > 1000
+    assert (i < 0.01).sum() >= 15 and (i > 0.1).sum() > 1000
 
 
 def test_scenario_overrides_the_preset_heater():

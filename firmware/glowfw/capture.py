@@ -95,14 +95,27 @@ class Capture:
         self.sets += count
         self.link.poll()  # heartbeats and abort between blocks
 
+    def _send_dense(self, pending, dense, dense_buf, all_of_them):
+        """One pending dense block (all of them once the capture stops)."""
+        while pending:
+            t_rel, first, count = pending.pop(0)
+            self.send_block(1, t_rel, dense[2], dense[3], dense_buf, first, count)
+            if not all_of_them:
+                return
+
     def run(self):
         b = self.board
         p = self.p
         nch = self.nch
         max_us = int(p["max_s"] * 1000000)
         phases = schedule.build(nch, max_us)
-        chunk = max(ph[5] for ph in phases)
-        buf = array.array("H", bytes(2 * nch * max(chunk, schedule.baseline_sets())))
+        # the dense phase's sets stay in their own buffer until sent, a block
+        # after each later chunk (spread, so the link never bursts)
+        dense = phases[0]
+        dense_buf = array.array("H", bytes(2 * nch * dense[5]))
+        chunk = max([ph[5] for ph in phases[1:]] + [schedule.baseline_sets()])
+        buf = array.array("H", bytes(2 * nch * chunk))
+        pending = []  # dense blocks still to send: (t_rel, first set, sets)
         b.set_range(p["range"])
         trip_code = b.amps_to_code(p["range"], p["trip_a"])
         self.sup.arm(p["silence_ms"], int(p["max_on_s"] * 1000000),
@@ -133,20 +146,27 @@ class Capture:
             for phase_no, ph in enumerate(phases, 1):
                 name, end_us, interval, osm, block_sets, chunk_sets = ph
                 end = end_us if end_us < max_us else max_us
+                into = dense_buf if phase_no == 1 else buf
                 while reason is None and rel < end:
                     n = min(chunk_sets, (end - rel + interval - 1) // interval)
                     done, t_first, tripped = b.sample(
-                        buf, n, time.ticks_add(t_on, rel), interval, osm,
+                        into, n, time.ticks_add(t_on, rel), interval, osm,
                         trip_code, self.current_idx)
                     rel_first = time.ticks_diff(t_first, t_on)
                     if tripped:
                         t_off_rel = rel_first + (done - 1) * interval
                     for k in range(0, done, block_sets):
-                        self.send_block(phase_no, rel_first + k * interval, interval,
-                                        osm, buf, k, min(block_sets, done - k))
+                        count = min(block_sets, done - k)
+                        if phase_no == 1:
+                            pending.append((rel_first + k * interval, k, count))
+                        else:
+                            self.send_block(phase_no, rel_first + k * interval, interval,
+                                            osm, buf, k, count)
+                    if pending and (phase_no > 1 or tripped):
+                        self._send_dense(pending, dense, dense_buf, tripped)
                     rel = rel_first + done * interval
                     tail = min(block_sets, done)
-                    means = _means(buf, nch, done - tail, tail, self.current_idx, osm)
+                    means = _means(into, nch, done - tail, tail, self.current_idx, osm)
                     cause = self.sup.check(rel, min(means), tripped)
                     if cause is not None:
                         reason = "trip"
@@ -171,6 +191,8 @@ class Capture:
             detail = repr(e)
         finally:
             t_off = b.heater(0)
+        if pending:  # a capture that ended in the fast phase: the rest, heater off
+            self._send_dense(pending, dense, dense_buf, True)
         if t_on is None:
             t_on = t_off
         if t_off_rel is None:

@@ -51,6 +51,8 @@ SETTINGS = {
     "adc_noise_lsb": Setting(float, "converter noise, LSB rms"),
     "pace": Setting(float, "simulated seconds per wall second (0, the default: flat out)"),
     "seed": Setting(int, "noise seed"),
+    "link_log": Setting(str, "file to which the board appends, per write to the link, its "
+                             "clock (us) and the bytes (the link benchmark reads it)"),
     "state_dir": Setting(str, "folder for the board's flash (default: per serial, under "
                               "the data directory's sim/)"),
     "section_v": Setting(float, "rated heater volts per section", heater=True),
