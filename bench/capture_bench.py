@@ -4,7 +4,11 @@ and it prints, for the simulated tester and a 12AX7 section-pair capture:
   - wall time of one simulated capture (firmware under micropython),
   - bytes on the link per capture,
   - host decode-and-store time per capture (frames replayed from memory),
-  - database bytes per capture (raw samples and the whole file).
+  - database bytes per capture (raw samples and the whole file),
+  - for one single-section and one dual-section capture: the samples as
+    stored (FLAC per phase) beside the older LZMA encoding and beside the
+    order-0 entropy of the residuals of a least-squares linear predictor
+    (order 8, per phase and channel): what a predictive coder can hope for.
 """
 
 import argparse
@@ -65,6 +69,46 @@ def decode_and_store(stream: bytes, hello: dict, store: Store) -> float:
     return time.perf_counter() - t0
 
 
+def lpc_entropy_bytes(raw, order: int = 8) -> float:
+    """Order-0 entropy (bytes) of the residuals of a least-squares linear
+    predictor of the given order, fitted per phase and channel, integer-
+    rounded as a lossless coder would use it; the first `order` sets of a
+    phase counted at 16 bits."""
+    import numpy as np
+    bits = 0.0
+    for phase in sorted({b.phase for b in raw.blocks}):
+        bl = sorted((b for b in raw.blocks if b.phase == phase), key=lambda b: b.t_start_us)
+        a = np.concatenate([np.frombuffer(b.data, "<u2").reshape(-1, b.n_channels)
+                            for b in bl]).astype(float)
+        for x in a.T:
+            if len(x) <= 2 * order:
+                bits += 16 * len(x)
+                continue
+            past = np.column_stack([x[order - k - 1:len(x) - k - 1] for k in range(order)])
+            coef, *_ = np.linalg.lstsq(past, x[order:], rcond=None)
+            r = np.round(x[order:] - past @ coef).astype(np.int64)
+            _, counts = np.unique(r, return_counts=True)
+            p = counts / counts.sum()
+            bits += float(-(p * np.log2(p)).sum()) * len(r) + 16 * order
+    return bits / 8
+
+
+def storage_report():
+    from glowtrace.logbook import samples_codec
+    from simhelp import sim_tester
+    print("stored samples per capture (12AX7; bytes): FLAC per phase + block table | older "
+          "LZMA encoding | entropy of LPC-8 residuals")
+    for section in ("A", "AB"):
+        with sim_tester(tube="12AX7", seed=4) as t:
+            raw = t.capture("BENCH", section, {})
+        meta, smp = samples_codec.encode(raw.blocks)
+        old_meta, old_smp = samples_codec.encode_planes(raw.blocks)
+        print(f"  section {section:2}: {len(smp):,} + {len(meta):,} = {len(smp) + len(meta):,} | "
+              f"{len(old_smp) + len(old_meta):,} | {lpc_entropy_bytes(raw):,.0f} "
+              f"({raw.n_sets} sets x {len(raw.channels)} channels, raw "
+              f"{raw.n_sets * len(raw.channels) * 2:,})")
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--runs", type=int, default=5)
@@ -106,6 +150,7 @@ def main():
     raw_bytes = raw.n_sets * len(raw.channels) * 2
     print(f"raw sample payload {raw_bytes:,} bytes -> stored "
           f"{statistics.median(sample_bytes) / raw_bytes:.0%}")
+    storage_report()
 
 
 if __name__ == "__main__":

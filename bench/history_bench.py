@@ -31,13 +31,13 @@ sys.path.insert(0, str(ROOT / "tests"))
 from glowtrace import config  # noqa: E402
 from glowtrace.analysis import ANALYSIS_VERSION  # noqa: E402
 from glowtrace.judgement import scoring  # noqa: E402
+from glowtrace.logbook import samples_codec  # noqa: E402
 from glowtrace.logbook.store import Store, metric_rows  # noqa: E402
 
 TYPES = [("12AX7", 6.2, 0.15), ("12AU7", 6.4, 0.15), ("EL84", 1.3, 0.76), ("6V6", 2.4, 0.45)]
 
 
 def sample_blob() -> tuple[bytes, bytes]:
-    from glowtrace.logbook import samples_codec
     from simhelp import sim_tester
     with sim_tester(seed=1) as t:
         raw = t.capture("B", "A", {})
@@ -90,10 +90,11 @@ def build(db_path: Path, n_tubes: int, per_tube: int, samples: bool) -> float:
                 caps.append([u, label, "A", at, now, 1, None, "settled", None, "sim-0001",
                              "0.1.0", "glowsim://", amb, 11500, 260, "{}", "{}", "[]", "{}",
                              "null", "{}", "tester"])
-                smp.append([u, "delta16-planes-lzma-v1", '["ia","ib","v"]', 11500, blocks, blob])
+                smp.append([u, samples_codec.ENCODING, '["ia","ib","v"]', 11500, blocks, blob])
                 ana.append([u, ANALYSIS_VERSION, now, json.dumps(doc)])
                 met += metric_rows(u, ANALYSIS_VERSION, doc, label, at, True)
-            conn.executemany("INSERT INTO captures VALUES (" + ",".join("?" * 22) + ")", caps)
+            conn.executemany("INSERT INTO captures VALUES (" + ",".join("?" * 23) + ")",
+                             [c + [None] for c in caps])
             conn.executemany("INSERT INTO capture_samples VALUES (?,?,?,?,?,?)", smp)
             conn.executemany("INSERT INTO analyses VALUES (?,?,?,?)", ana)
             names = list(met[0])

@@ -230,7 +230,7 @@ def test_report_export_and_merge(capsys, tmp_path):
 
 def test_migration_from_schema_2_backfills_metrics(tmp_path, monkeypatch):
     from glowtrace.tester.protocol import Block
-    from test_store import _raw
+    from test_store import _raw, store_old_way
     db = tmp_path / "old.db"
     monkeypatch.setattr(store_mod, "MIGRATIONS", store_mod.MIGRATIONS[:2])
     monkeypatch.setattr(store_mod, "LATEST", 2)
@@ -240,7 +240,7 @@ def test_migration_from_schema_2_backfills_metrics(tmp_path, monkeypatch):
         "hot_current_a": 0.15, "inrush_ratio": 6.6, "warnings": []}}}
     with Store(db) as s:
         assert s.schema_version() == 2
-        s.save_capture(raw, tube_type="12AX7")
+        store_old_way(s, raw, tube_type="12AX7")
         s.db.execute("INSERT INTO analyses VALUES (?, '1.0', 'x', ?)",
                      [raw.uuid, json.dumps(result)])
     monkeypatch.undo()

@@ -1,5 +1,6 @@
 """The SQLite logbook: lossless samples, migrations, whole-or-nothing writes."""
 
+import contextlib
 import dataclasses
 import sqlite3
 
@@ -41,7 +42,11 @@ def block_lists(draw):
 @settings(max_examples=60, deadline=None)
 @given(block_lists())
 def test_codec_is_lossless_for_any_values(blocks):
-    assert blocks_equal(samples_codec.decode(*samples_codec.encode(blocks)), blocks)
+    enc = samples_codec.ENCODING
+    assert blocks_equal(samples_codec.decode(enc, *samples_codec.encode(blocks)), blocks)
+    # and the older encoding still reads back
+    old = samples_codec.PLANES
+    assert blocks_equal(samples_codec.decode(old, *samples_codec.encode_planes(blocks)), blocks)
 
 
 def test_simulated_capture_stored_and_read_back_bit_exact(db_path):
@@ -214,22 +219,67 @@ def test_type_figures_are_kept_until_the_logbook_changes(db_path, monkeypatch):
         assert computed == [1] and 0.2 in list(again.population["rated_hot_current_a"])
 
 
-def test_schema_5_logbook_gains_the_current_flag(db_path):
-    # a logbook written before migration 6, with two analysis versions of a
-    # capture: the migration marks the newest current
+def store_old_way(s, raw, tube_type=None):
+    """A capture written as glowtrace wrote one before schema 7 (its HELLO in
+    the row, the older sample encoding), into a logbook of an older schema."""
+    import json
+    meta, samples = samples_codec.encode_planes(raw.blocks)
+    with s.transaction() as conn:
+        conn.execute("INSERT OR IGNORE INTO tubes (label, type, created_at) VALUES (?, ?, 'x')",
+                     [raw.tube, tube_type])
+        conn.execute(
+            "INSERT INTO captures (uuid, tube, section, started_at, stored_at, complete, "
+            "board_id, port, n_sets, n_blocks, params, hello, phases, end_record, "
+            "trip_record, link) VALUES (?, ?, ?, ?, 'x', 1, 'b', 'p', ?, ?, '{}', ?, '[]', ?, "
+            "'null', '{}')",
+            [raw.uuid, raw.tube, raw.section, raw.started_at, raw.n_sets, len(raw.blocks),
+             json.dumps(raw.hello), json.dumps(raw.end)])
+        conn.execute("INSERT INTO capture_samples VALUES (?, ?, ?, ?, ?, ?)",
+                     [raw.uuid, samples_codec.PLANES, json.dumps(raw.channels), raw.n_sets,
+                      meta, samples])
+    return raw.uuid
+
+
+def test_schema_5_logbook_gains_the_current_flag_and_tester_records(db_path, monkeypatch):
+    # a logbook written before migrations 6 and 7, two analysis versions of a
+    # capture: the migrations mark the newest current and move the HELLO out
+    monkeypatch.setattr(store_mod, "MIGRATIONS", store_mod.MIGRATIONS[:5])
+    monkeypatch.setattr(store_mod, "LATEST", 5)
+    raw = _raw([Block(1, 0, 0, 3, 1, 1, 0, 100, b"\0" * 6)])
     with Store(db_path) as s:
-        uuid = s.save_capture(_raw([Block(1, 0, 0, 3, 1, 1, 0, 100, b"\0" * 6)]))
+        uuid = store_old_way(s, raw)
         s.save_analysis(uuid, _analysis("2.0", 0.15))
         s.save_analysis(uuid, _analysis("2.10", 0.15))
-        with s.transaction() as conn:  # back to schema 5
-            for name in ("sm_inserted", "sm_deleted", "sm_updated", "tubes_changed",
-                         "tubes_inserted", "tubes_deleted"):
-                conn.execute(f"DROP TRIGGER {name}")
-            conn.execute("DROP TABLE logbook_generation")
-            conn.execute("DROP TABLE scoring_cache")
-            conn.execute("DROP INDEX idx_section_metrics_current_tube_section_at")
-            conn.execute("ALTER TABLE section_metrics DROP COLUMN current")
-            conn.execute("DELETE FROM schema_migrations WHERE version = 6")
+    monkeypatch.undo()
     with Store(db_path) as s:
         assert s.schema_version() == store_mod.LATEST
         assert _current(s, uuid) == [("2.10",)]
+        row = s.db["captures"].get(uuid)
+        assert row["hello"] is None and s.db["tester_records"].count == 1
+        back = s.load_capture(uuid)
+        assert back.hello == raw.hello and blocks_equal(back.blocks, raw.blocks)
+
+
+def test_captures_stored_in_the_older_encoding_still_load(db_path):
+    with sim_tester_capture() as raw, Store(db_path) as s:
+        uuid = s.save_capture(raw)
+        meta, samples = samples_codec.encode_planes(raw.blocks)
+        with s.transaction() as conn:
+            conn.execute("UPDATE capture_samples SET encoding = ?, blocks = ?, samples = ? "
+                         "WHERE capture_uuid = ?", [samples_codec.PLANES, meta, samples, uuid])
+        assert blocks_equal(s.load_capture(uuid).blocks, raw.blocks)
+
+
+@contextlib.contextmanager
+def sim_tester_capture():
+    from simhelp import sim_tester
+    with sim_tester(tube="12AX7", seed=2) as t:
+        yield t.capture("T1", "A", {"max_s": 2})
+
+
+def test_a_testers_record_is_kept_once(db_path):
+    with sim_tester_capture() as first, sim_tester_capture() as second, Store(db_path) as s:
+        for raw in (first, second):
+            s.save_capture(raw)
+        assert s.db["tester_records"].count == 1
+        assert s.load_capture(second.uuid).hello == second.hello

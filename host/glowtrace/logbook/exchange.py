@@ -23,7 +23,8 @@ def export_db(store: Store, path: str | Path) -> int:
 
 
 # tables in dependency order, with the key that identifies a row across benches
-_MERGE = [("owners", ("name",)), ("tubes", ("label",)), ("captures", ("uuid",)),
+_MERGE = [("owners", ("name",)), ("tubes", ("label",)), ("tester_records", ("hash",)),
+          ("captures", ("uuid",)),
           ("capture_samples", ("capture_uuid",)), ("analyses", ("capture_uuid", "version")),
           ("section_metrics", ("capture_uuid", "section", "version")),
           ("baselines", ("tube", "section"))]

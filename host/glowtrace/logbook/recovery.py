@@ -78,13 +78,13 @@ def load_unsaved(path: str | Path) -> tuple[RawCapture, str | None, str | None]:
         raise RecoveryError(f"{path} is not an unsaved capture ({e})") from None
     if not isinstance(doc, dict) or doc.get("format") != FORMAT:
         raise RecoveryError(f"{path} is not an unsaved capture of glowtrace")
-    if doc.get("version") != FORMAT_VERSION or doc.get("encoding") != samples_codec.ENCODING:
+    if doc.get("version") != FORMAT_VERSION or doc.get("encoding") not in samples_codec.KNOWN:
         raise RecoveryError(f"{path} was written by another version of glowtrace "
                             f"(format {doc.get('version')}, samples {doc.get('encoding')})")
     try:
-        blocks = samples_codec.decode(base64.b64decode(doc["blocks"]),
+        blocks = samples_codec.decode(doc["encoding"], base64.b64decode(doc["blocks"]),
                                       base64.b64decode(doc["samples"]))
         raw = RawCapture(blocks=blocks, **{k: doc["capture"][k] for k in _FIELDS})
-    except (KeyError, TypeError, ValueError, lzma.LZMAError) as e:
+    except (KeyError, TypeError, ValueError, lzma.LZMAError, RuntimeError) as e:
         raise RecoveryError(f"{path} is damaged: {e}") from None
     return raw, doc.get("tube_type"), doc.get("notes")

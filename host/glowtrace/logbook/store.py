@@ -3,6 +3,7 @@ UUID, raw samples kept losslessly with the timing, front end and calibration
 they were taken with. A capture is written in one transaction: it is there
 whole or not at all."""
 
+import hashlib
 import json
 import os
 import sqlite3
@@ -177,6 +178,27 @@ def _m6_scoring_keys(db: sqlite_utils.Database) -> None:
         db.execute(f"CREATE TRIGGER {name} {when} BEGIN {body} END")
 
 
+def _m7_tester_records(db: sqlite_utils.Database) -> None:
+    """A tester's HELLO (its front end, ranges and calibration, about 2 kB)
+    kept once per distinct record, keyed by its SHA-256, instead of in every
+    capture row; the rows of tester captures move there."""
+    db["tester_records"].create({"hash": str, "hello": str}, pk="hash")
+    db.execute("ALTER TABLE captures ADD COLUMN hello_hash TEXT REFERENCES tester_records(hash)")
+    rows = db.execute("SELECT uuid, hello FROM captures WHERE source = 'tester' "
+                      "AND hello IS NOT NULL").fetchall()
+    for uuid, text in rows:
+        h = _keep_hello(db.conn, json.loads(text))
+        db.execute("UPDATE captures SET hello_hash = ?, hello = NULL WHERE uuid = ?", [h, uuid])
+
+
+def _keep_hello(conn, hello: dict) -> str:
+    """The record's key, after storing it if it is new."""
+    text = json.dumps(hello, sort_keys=True)
+    h = hashlib.sha256(text.encode()).hexdigest()
+    conn.execute("INSERT OR IGNORE INTO tester_records (hash, hello) VALUES (?, ?)", [h, text])
+    return h
+
+
 _MARK_CURRENT = """UPDATE section_metrics SET current = (version = (
     SELECT max(version COLLATE analysis_version) FROM section_metrics x
     WHERE x.capture_uuid = section_metrics.capture_uuid AND x.section = section_metrics.section))
@@ -191,6 +213,7 @@ MIGRATIONS = [
     (4, "calibrations of testers", _m4_calibrations),
     (5, "figures at rated conditions in section metrics", _m5_rated_figures),
     (6, "current analysis flag, logbook generation, scoring cache", _m6_scoring_keys),
+    (7, "tester records kept once, referenced from captures", _m7_tester_records),
 ]
 LATEST = MIGRATIONS[-1][0]
 
@@ -402,7 +425,7 @@ class Store:
             "board_id": raw.hello.get("board"), "firmware": raw.hello.get("firmware"),
             "port": raw.port, "ambient_c": raw.ambient_c, "n_sets": raw.n_sets,
             "n_blocks": len(raw.blocks), "params": json.dumps(raw.params),
-            "hello": json.dumps(raw.hello), "phases": json.dumps(raw.phases),
+            "hello": None, "phases": json.dumps(raw.phases),
             "end_record": json.dumps(raw.end), "trip_record": json.dumps(raw.trip),
             "link": json.dumps(raw.link),
         }
@@ -413,6 +436,7 @@ class Store:
                         "label = ?", [raw.tube]):
                     _insert(conn, "tubes", {"label": raw.tube, "type": tube_type,
                                             "notes": notes, "created_at": _now()})
+                row["hello_hash"] = _keep_hello(conn, raw.hello)
                 _insert(conn, "captures", row)
                 _insert(conn, "capture_samples", {
                     "capture_uuid": raw.uuid, "encoding": samples_codec.ENCODING,
@@ -501,17 +525,22 @@ class Store:
         if c["source"] == "import":
             raise StoreError(f"capture {uuid} is an imported curve, not a tester capture")
         s = self.db["capture_samples"].get(uuid)
-        if s["encoding"] != samples_codec.ENCODING:
+        if s["encoding"] not in samples_codec.KNOWN:
             raise StoreError(f"capture {uuid}: unknown sample encoding {s['encoding']}")
         return RawCapture(
             tube=c["tube"], section=c["section"], port=c["port"],
-            hello=json.loads(c["hello"]), params=json.loads(c["params"]),
+            hello=self._hello(c), params=json.loads(c["params"]),
             channels=json.loads(s["channels"]), ambient_c=c["ambient_c"],
             phases=json.loads(c["phases"]),
-            blocks=samples_codec.decode(s["blocks"], s["samples"]),
+            blocks=samples_codec.decode(s["encoding"], s["blocks"], s["samples"]),
             end=json.loads(c["end_record"]), trip=json.loads(c["trip_record"]),
             incomplete_reason=c["incomplete_reason"], link=json.loads(c["link"]),
             started_at=c["started_at"], uuid=c["uuid"])
+
+    def _hello(self, capture: dict) -> dict:
+        if capture["hello"] is not None:
+            return json.loads(capture["hello"])
+        return json.loads(self.db["tester_records"].get(capture["hello_hash"])["hello"])
 
     def list_captures(self, tube: str | None = None) -> list[dict]:
         where, args = ("WHERE c.tube = ?", [tube]) if tube else ("", [])
