@@ -96,7 +96,6 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
     lim = cfg["limits"][metric]
     direction = lim["direction"]
     absolute = metric == "flash_index"
-    label, unit = LABELS[metric]
     x = [float(v) for v in xs]
     s = MetricScore(metric, len(x))
     if not x or (not absolute and min(x) <= 0):
@@ -114,7 +113,6 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
     s.z_latest = (y[-1] - centre_y) / (sigma * math.sqrt(1.0 + 1.0 / len(base)))
     s.change = (x[-1] - centre) if absolute else (x[-1] / centre - 1.0)
     q = charts.q_statistics(base, y[max(idx) + 1:], sigma)
-    where = f"section {section}: {label}"
     if q:
         e = charts.ewma(q, 0.0, 1.0, ch["ewma_lambda"], ch["ewma_limit"])
         last = float(e.values[-1])
@@ -134,6 +132,16 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
         s.trend_p = mk.p
         moved = abs(slope * (ty[-1] - ty[0])) > 2 * sigma
         s.trend_significant = mk.p < ch["trend_p"] and _bad(direction, slope) and moved
+    set_limits(s, lim, centre, absolute)
+    s.drifting = s.ewma_signal or s.cusum_signal or s.trend_significant
+    if s.at_limit or s.drifting:
+        explain(s, direction, slope, icpt, ty[-1] if len(ty) else None, ats[-1], section)
+    return s
+
+
+def set_limits(s: MetricScore, lim: dict, centre: float, absolute: bool) -> None:
+    """The limit lines about the baseline, and whether the latest is at one."""
+    direction = lim["direction"]
     if absolute:  # the flash index: an amount above its baseline
         s.limits = [centre + lim["absolute"]]
         s.at_limit = s.latest >= s.limits[0]
@@ -143,17 +151,26 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
                     "both": [centre * (1 - ch_), centre * (1 + ch_)]}[direction]
         s.at_limit = abs(s.change) >= ch_ and _bad(direction, s.change)
     s.limit = s.limits[-1] if direction != "down" else s.limits[0]
+
+
+def explain(s: MetricScore, direction: str, slope, icpt, t_last, at_last: str,
+            section: str) -> None:
+    """The crossing date of a trend and the reasons, for a metric at its
+    limit or drifting (the others say nothing)."""
+    absolute = s.metric == "flash_index"
+    label, unit = LABELS[s.metric]
+    where = f"section {section}: {label}"
+
     def fmt(v):
         return f"{v:+.3f}" if absolute else f"{100 * v:+.1f} %"
     if s.trend_significant and not s.at_limit and slope:
         target = s.limit if absolute else math.log(s.limit)
         if direction == "both":
             target = math.log(s.limits[1] if slope > 0 else s.limits[0])
-        years_left = (target - (icpt + slope * ty[-1])) / slope
+        years_left = (target - (icpt + slope * t_last)) / slope
         if 0 < years_left < 50:
-            when = _parse_at(ats[-1]) + timedelta(days=365.25 * years_left)
+            when = _parse_at(at_last) + timedelta(days=365.25 * years_left)
             s.crossing = when.date().isoformat()
-    s.drifting = s.ewma_signal or s.cusum_signal or s.trend_significant
     if s.at_limit:
         shown = " / ".join(f"{v:.4g}" for v in s.limits)
         s.reasons.append(f"{where} is {fmt(s.change)} from its baseline, at or past its "
@@ -169,19 +186,20 @@ def score_metric(metric: str, ats: list[str], xs: list[float], n_base: int,
         if s.crossing:
             msg += f"; at this rate it reaches its limit around {s.crossing}"
         s.reasons.append(msg)
-    return s
 
 
 def _excluded_fault(row: dict) -> bool:
-    ex = row.get("excluded") or ""
+    ex = row["excluded"] or ""
     if ex.startswith("not judged"):
         return False
     return ex.startswith("heater fault") or "open heater" in ex or "shorted" in ex
 
 
 def score_section(rows: list[dict], cfg: dict, section: str,
-                  baseline_uuids: list[str] | None = None, noise: dict | None = None) -> dict:
-    """noise: the type's pooled noise per metric (type_noise), or None."""
+                  baseline_uuids: list[str] | None = None, noise: dict | None = None,
+                  scores: dict | None = None) -> dict:
+    """noise: the type's pooled noise per metric (type_noise), or None;
+    scores: the section's MetricScores computed already (fleet_scores)."""
     scored = [r for r in rows if r["scored"]]
     n_base = int(cfg["baseline"]["count"])
     out = {"captures": len(rows), "scored": len(scored), "metrics": {}, "reasons": [],
@@ -197,16 +215,22 @@ def score_section(rows: list[dict], cfg: dict, section: str,
                               f"{rows[-1]['excluded']}")
         return out
     statuses = []
-    yrs = list(_years([r["at"] for r in scored])) if scored else []
+    if scores is None:
+        scores = {}
+        yrs = list(_years([r["at"] for r in scored])) if scored else []
+        for m in METRICS:
+            pts = [(r["at"], r[m], r["capture_uuid"], y) for r, y in zip(scored, yrs)
+                   if r[m] is not None]
+            ats, xs, uuids = [p[0] for p in pts], [p[1] for p in pts], [p[2] for p in pts]
+            years = [p[3] for p in pts]
+            base_idx = [uuids.index(u) for u in (baseline_uuids or []) if u in uuids] or None
+            scores[m] = score_metric(m, ats, xs, n_base, base_idx, cfg, section, years,
+                                     (noise or {}).get(m))
     for m in METRICS:
-        pts = [(r["at"], r[m], r["capture_uuid"], y) for r, y in zip(scored, yrs)
-               if r[m] is not None]
-        ats, xs, uuids = [p[0] for p in pts], [p[1] for p in pts], [p[2] for p in pts]
-        years = [p[3] for p in pts]
-        base_idx = [uuids.index(u) for u in (baseline_uuids or []) if u in uuids] or None
-        s = score_metric(m, ats, xs, n_base, base_idx, cfg, section, years,
-                         (noise or {}).get(m))
-        out["metrics"][m] = {k: v for k, v in s.__dict__.items() if k != "reasons"}
+        s = scores[m]
+        shown = dict(s.__dict__)
+        del shown["reasons"]
+        out["metrics"][m] = shown
         # metrics at their limit lead the reasons
         out["reasons"] = (s.reasons + out["reasons"]) if s.at_limit else (out["reasons"] + s.reasons)
         if s.at_limit and s.baseline is not None:
@@ -233,13 +257,18 @@ def worst(statuses) -> str:
 
 # loading ------------------------------------------------------------------
 _ROWS_SQL = """
-SELECT s.* FROM section_metrics s WHERE s.current = 1
+SELECT {columns} FROM section_metrics s WHERE s.current = 1
 {where} ORDER BY s.tube, s.section, s.at, s.capture_uuid"""
+# what judging reads of a row (a fleet fetches only these)
+JUDGED = ("capture_uuid", "section", "version", "tube", "at", "scored", "excluded",
+          "hot_resistance_ohm") + tuple(dict.fromkeys(METRICS + MEASURED))
 
 
-def load_rows(store: Store, tube: str | None = None) -> dict:
-    """tube -> section -> rows in time order (newest analysis of each)."""
-    sql = _ROWS_SQL.format(where="AND s.tube = ?" if tube else "")
+def load_rows(store: Store, tube: str | None = None, columns: tuple | None = None) -> dict:
+    """tube -> section -> rows in time order (newest analysis of each);
+    columns: only these (default: every column)."""
+    sql = _ROWS_SQL.format(where="AND s.tube = ?" if tube else "",
+                           columns=", ".join(f"s.{c}" for c in columns) if columns else "s.*")
     cur = store.db.execute(sql, [tube] if tube else [])
     cols = [d[0] for d in cur.description]
     out: dict = {}
@@ -345,12 +374,15 @@ def percentile(value: float, population) -> float:
 
 # tubes --------------------------------------------------------------------
 def assess(tube: dict, sections: dict, cfg: dict, baselines: dict,
-           population: dict | None, noise: dict | None = None) -> dict:
-    """Assessment of one tube from its section rows."""
+           population: dict | None, noise: dict | None = None,
+           scores: dict | None = None, kinds=None) -> dict:
+    """Assessment of one tube from its section rows; scores: its sections'
+    MetricScores computed already, by section (fleet_scores); kinds: the
+    catalogue, when the caller has it loaded (a fleet reads it once)."""
     tube_type = None
     if tube.get("type"):
         try:
-            tube_type = catalogue.load().get(tube["type"])
+            tube_type = (kinds or catalogue.load()).get(tube["type"])
         except catalogue.UnknownType:  # a broken catalogue file is an error, said
             tube_type = None
     # the sections measured so far; a tube never captured shows its type's
@@ -362,7 +394,8 @@ def assess(tube: dict, sections: dict, cfg: dict, baselines: dict,
         rows = sections.get(sec, [])
         if not rows and tube_type is None:
             continue
-        sc = score_section(rows, cfg, sec, baselines.get((tube["label"], sec)), noise)
+        sc = score_section(rows, cfg, sec, baselines.get((tube["label"], sec)), noise,
+                           (scores or {}).get(sec))
         result["sections"][sec] = sc
     # the worst section's reasons first
     for sc in sorted(result["sections"].values(), key=lambda x: STATUS_ORDER.index(x["status"])):
@@ -523,10 +556,96 @@ def assess_fleet(store: Store, cfg: dict, type_name: str | None = None,
                  owner: str | None = None) -> list[dict]:
     from ..logbook.records import list_tubes
     tubes = list_tubes(store, owner=owner, type_name=type_name)
-    rows = load_rows(store)
+    rows = load_rows(store, columns=JUDGED)
     baselines = load_baselines(store)
     figures = {t: type_figures(store, t) for t in {t["type"] for t in tubes if t["type"]}}
+    noises = {t: f.noise(cfg) for t, f in figures.items()}
+    scores = fleet_scores([(t, rows.get(t["label"], {})) for t in tubes], cfg, baselines,
+                          noises)
+    kinds = catalogue.load()
     return [assess(t, rows.get(t["label"], {}), cfg, baselines,
                    figures[t["type"]].population if t["type"] else None,
-                   figures[t["type"]].noise(cfg) if t["type"] else None)
+                   noises.get(t["type"]), scores.get(t["label"]), kinds)
             for t in tubes]
+
+
+def fleet_scores(tubes: list, cfg: dict, baselines: dict, noises: dict) -> dict:
+    """label -> section -> metric -> MetricScore for the tube sections scored
+    on their default baseline, computed for all of them together (fleet.py);
+    a section with a baseline of the user's is left to score_section.
+
+    Every scored row of the fleet goes into one array (rows of a tube
+    section together, in time order); per metric, the sections whose series
+    have the same length are gathered into one [sections x n] array."""
+    from operator import itemgetter
+    from . import fleet
+    n_base = int(cfg["baseline"]["count"])
+    out: dict = {}
+    keys, gids, flat = [], [], []  # per section: (its scores, section, sigma by metric)
+    for tube, sections in tubes:
+        noise = noises.get(tube["type"]) or {}
+        sigma = [max(cfg["noise_floor"][m], noise.get(m) or 0.0) for m in METRICS]
+        for sec, rows in sections.items():
+            if (tube["label"], sec) in baselines or (rows and _excluded_fault(rows[-1])):
+                continue  # the user's baseline, or a heater fault: score_section
+            scored = [r for r in rows if r["scored"]]
+            gids += [len(keys)] * len(scored)
+            flat += scored
+            keys.append((out.setdefault(tube["label"], {}).setdefault(sec, {}), sec, sigma))
+    if not keys:
+        return out
+    gid = np.array(gids, dtype=np.int64)
+    values = np.array(list(map(itemgetter(*METRICS), flat)), dtype=float).reshape(
+        len(flat), len(METRICS))
+    ats = [r["at"] for r in flat]
+    years = fleet.fleet_years(ats, gid)
+    sigmas = np.array([k[2] for k in keys])
+    for j, m in enumerate(METRICS):
+        lim = cfg["limits"][m]
+        absolute = m == "flash_index"
+        x_all = values[:, j]
+        idx = np.nonzero(~np.isnan(x_all))[0]
+        g_of = gid[idx]
+        counts = np.bincount(g_of, minlength=len(keys))
+        bad = np.zeros(len(keys), bool) if absolute else np.bincount(
+            g_of, weights=x_all[idx] <= 0, minlength=len(keys)) > 0
+        short = (counts < n_base) | bad
+        last_row = np.full(len(keys), -1)
+        last_row[g_of] = idx  # the last valid row of each section (rows in order)
+        for g in np.nonzero(short)[0].tolist():
+            s = MetricScore(m, int(counts[g]))
+            if counts[g] and not bad[g]:
+                s.latest = float(x_all[last_row[g]])
+            keys[g][0][m] = s
+        for n in np.unique(counts[~short]).tolist():
+            members = np.nonzero((counts == n) & ~short)[0]
+            rows_of = idx[np.isin(g_of, members)].reshape(len(members), n)
+            x = x_all[rows_of]
+            t = years[rows_of]
+            sigma = sigmas[members, j]
+            y = x if absolute else np.log(x)
+            st = fleet.series_statistics(y, t, sigma, n_base, cfg["charts"], lim["direction"])
+            centre = st["centre_y"] if absolute else np.exp(st["centre_y"])
+            latest = x[:, -1]
+            change = latest - centre if absolute else latest / centre - 1.0
+            scale = sigma * (1.0 if absolute else centre)
+            cols = [a.tolist() for a in (centre, scale, latest, change, st["z_latest"],
+                                         st["ewma_signal"], st["cusum_signal"],
+                                         st["has_trend"], st["slope"], st["icpt"],
+                                         st["trend_p"], st["trend_significant"], t[:, -1],
+                                         rows_of[:, -1], members)]
+            for (c, sc, la, chg, z, ew, cu, has, slope, icpt, p, sig, t_last, last,
+                 g) in zip(*cols):
+                s = MetricScore(m, n, baseline=c, scale=sc, latest=la, change=chg,
+                                z_latest=z, ewma_signal=ew, cusum_signal=cu)
+                if has:
+                    s.trend_per_year, s.trend_p, s.trend_significant = slope, p, sig
+                else:
+                    slope = icpt = None
+                set_limits(s, lim, c, absolute)
+                s.drifting = s.ewma_signal or s.cusum_signal or s.trend_significant
+                mine, sec, _ = keys[g]
+                if s.at_limit or s.drifting:
+                    explain(s, lim["direction"], slope, icpt, t_last, ats[last], sec)
+                mine[m] = s
+    return out
