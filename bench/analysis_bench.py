@@ -1,6 +1,6 @@
 """Analysis benchmark (not a test):
     .venv/bin/python bench/analysis_bench.py [--runs N]
-Analyses a ~20k-sample start-up curve (a 100 s simulated tester capture of a
+Analyses a ~10k-sample start-up curve (a 100 s simulated tester capture of a
 12AX7 section; one even heater, one that flashes) with every metric and the
 model fit, and prints the median time next to two baselines timed in the
 same run:

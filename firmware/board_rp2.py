@@ -59,6 +59,7 @@ class Rp2Board:
         self.channels = frontend.channel_names(fe, fitted_optional)
         self.inputs = [c["adc_input"] for c in fe["channels"] if c["name"] in self.channels]
         self.adcs = [machine.ADC(i) for i in self.inputs]
+        self.active = list(range(len(self.channels)))
         self.temp_adc = machine.ADC(4)
         self.ranges = list(fe["current_ranges"])
         self.board_id = "rp2-" + "".join("%02x" % b for b in machine.unique_id())
@@ -130,6 +131,11 @@ class Rp2Board:
         return round(27.0 - (v - 0.706) / 0.001721, 1)
 
     # sampling
+    def use_channels(self, names):
+        """Sample only these channels (in the order of `channels`, which is
+        the ADC inputs' order, as the round robin takes them)."""
+        self.active = [self.channels.index(n) for n in names]
+
     def sample(self, buf, n_sets, t_start, interval, oversample, trip_code, current_idx):
         if oversample == 1 and interval < 100:
             return self._sample_dma(buf, n_sets, t_start, interval, trip_code, current_idx)
@@ -138,7 +144,7 @@ class Rp2Board:
 
     def _sample_paced(self, buf, n_sets, t_start, interval, oversample, trip_code,
                       current_idx):
-        adcs = self.adcs
+        adcs = [self.adcs[c] for c in self.active]
         nch = len(adcs)
         trip_sum = trip_code * oversample
         while time.ticks_diff(t_start, time.ticks_us()) > 0:
@@ -164,10 +170,11 @@ class Rp2Board:
         return n_sets, t0, False
 
     def _sample_dma(self, buf, n_sets, t_start, interval, trip_code, current_idx):
-        nch = len(self.inputs)
+        inputs = [self.inputs[c] for c in self.active]
+        nch = len(inputs)
         total = n_sets * nch
         mask = 0
-        for i in self.inputs:
+        for i in inputs:
             mask |= 1 << i
         # conversion every interval/nch us, round robin from the lowest input
         div = (_ADC_CLOCK_HZ * interval // (1000000 * nch)) - 1
@@ -184,7 +191,7 @@ class Rp2Board:
         while time.ticks_diff(t_start, time.ticks_us()) > 0:
             pass
         t0 = time.ticks_us()
-        machine.mem32[_ADC_CS] = (1 | (1 << 3) | (self.inputs[0] << ainsel_shift)
+        machine.mem32[_ADC_CS] = (1 | (1 << 3) | (inputs[0] << ainsel_shift)
                                   | (mask << rr_shift))
         tripped = False
         checked = 0

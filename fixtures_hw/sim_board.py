@@ -31,6 +31,7 @@ class SimBoard:
         self.frontend = fe
         fitted = ("light",) if scenario.get("light") else ()
         self.channels = frontend.channel_names(fe, fitted)
+        self.active = list(range(len(self.channels)))
         self.ranges = list(fe["current_ranges"])
         self.board_id = "sim-" + scenario.get("serial", "0001")
         self.reset_cause = scenario.get("reset_cause", "power_on")
@@ -197,13 +198,17 @@ class SimBoard:
         return hi if s > hi else (0 if s < 0 else s)
 
     # sampling ----------------------------------------------------------
+    def use_channels(self, names):
+        """Sample only these channels (in the order of `channels`)."""
+        self.active = [self.channels.index(n) for n in names]
+
     def sample(self, buf, n_sets, t_start, interval, oversample, trip_code, current_idx):
         """Fill buf with n_sets sets of code sums starting at t_start (us),
         one set every interval us. Switches the heater off at once, and
         returns early, when a current channel exceeds trip_code."""
         t0 = t_start if t_start > self.t_us else int(self.t_us)
-        nch = len(self.channels)
-        chans = self.channels
+        chans = [self.channels[c] for c in self.active]
+        nch = len(chans)
         trip_sum = trip_code * oversample
         for k in range(n_sets):
             t = t0 + k * interval

@@ -77,9 +77,13 @@ class Capture:
         self.sup = sup
         self.id = capture_id
         self.p = params
-        self.nch = len(board.channels)
-        self.current_idx = [board.channels.index("i" + s.lower())
-                            for s in params["section"]]
+        # the switched sections' currents, the voltage (and light): an idle
+        # section's channel would only add converter noise to the link and
+        # the logbook
+        switched = ["i" + s.lower() for s in params["section"]]
+        self.channels = [n for n in board.channels if n not in ("ia", "ib") or n in switched]
+        self.nch = len(self.channels)
+        self.current_idx = [self.channels.index(n) for n in switched]
         self.block_index = 0
         self.sets = 0
         self.abort_requested = False
@@ -123,7 +127,7 @@ class Capture:
         settle = SettleDetector(p["settle_band"], int(p["settle_hold_s"] * 1000000),
                                 int(p["settle_min_s"] * 1000000))
         self.link.send_json(proto.CAPTURE_START, {
-            "id": self.id, "params": p, "channels": b.channels,
+            "id": self.id, "params": p, "channels": self.channels,
             "ambient_c": b.ambient_c(),
             "phases": [[ph[0], ph[1], ph[2], ph[3]] for ph in phases]})
         reason = None
@@ -131,6 +135,7 @@ class Capture:
         detail = None
         t_on = None
         t_off_rel = None
+        b.use_channels(self.channels)
         try:
             # baseline: heater off, offsets of every channel
             bl = schedule.BASELINE
@@ -191,6 +196,7 @@ class Capture:
             detail = repr(e)
         finally:
             t_off = b.heater(0)
+            b.use_channels(b.channels)
         if pending:  # a capture that ended in the fast phase: the rest, heater off
             self._send_dense(pending, dense, dense_buf, True)
         if t_on is None:

@@ -20,6 +20,12 @@ class FakeBoard:
         self.inbox = bytearray()
         self.wall_ms = 0
         self.wall_follows = False  # True: wall clock runs with heater time
+        self.active = [0, 1, 2]
+        self.active_log = []  # every use_channels call
+
+    def use_channels(self, names):
+        self.active = [self.channels.index(n) for n in names]
+        self.active_log.append(list(names))
 
     def now_us(self):
         return self.t
@@ -60,11 +66,12 @@ class FakeBoard:
             self.t = t0 + k * interval
             if self.wall_follows:
                 self.wall_ms = self.t // 1000
-            for c in range(3):
+            nch = len(self.active)
+            for j, c in enumerate(self.active):
                 a = self.current(c) if c < 2 else 0.0
                 code = min(4095, int(a / 3.3 * 4096)) if c < 2 else 1900
-                buf[k * 3 + c] = code * osm
-                if trip_code and c in current_idx and code > trip_code:
+                buf[k * nch + j] = code * osm
+                if trip_code and j in current_idx and code > trip_code:
                     self.heater(0)
                     return k + 1, t0, True
         self.t = t0 + n * interval
