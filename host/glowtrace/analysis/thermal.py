@@ -216,6 +216,7 @@ def fit(b: Binned, r20: float, k: float, t_amb_k: float, r_end: float, v_end: fl
              "tau_x": 0.1}
     if start is not None:
         guess.update({n: getattr(start, n) for n in ("r_hot", "dt_ws", "tau_w", "tau_s")})
+
     def make(x):
         p = dict(zip(names, np.exp(x)))
         return ThermalModel(r20=r20, k=k, t_amb_k=t_amb_k, p_hot=v_end ** 2 / p["r_hot"], **p)
@@ -235,8 +236,8 @@ def fit(b: Binned, r20: float, k: float, t_amb_k: float, r_end: float, v_end: fl
             p = dict(zip(names, np.exp(x.astype(complex))))
             p[names[j]] = p[names[j]] * np.exp(1j * stepper.COMPLEX_STEP)
             p = {n: complex(v) for n, v in p.items()}
-            p.setdefault("f", 0.0)
-            p.setdefault("tau_x", 0.1)
+            p.setdefault("f", ThermalModel.f)  # the even model's
+            p.setdefault("tau_x", ThermalModel.tau_x)
             rows.append(derived(r20, k, t_amb_k, p_hot=v_end ** 2 / p["r_hot"], **p))
         d = stepper.under_current_jacobian(edges, i2, np.array(rows, complex), *tab, t_amb_k)
         return d / b.sigma[:, None]

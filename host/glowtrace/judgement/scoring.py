@@ -231,8 +231,9 @@ def score_section(rows: list[dict], cfg: dict, section: str,
         shown = dict(s.__dict__)
         del shown["reasons"]
         out["metrics"][m] = shown
-        # metrics at their limit lead the reasons
-        out["reasons"] = (s.reasons + out["reasons"]) if s.at_limit else (out["reasons"] + s.reasons)
+        if s.reasons:  # metrics at their limit lead the reasons
+            out["reasons"] = (s.reasons + out["reasons"]) if s.at_limit \
+                else (out["reasons"] + s.reasons)
         if s.at_limit and s.baseline is not None:
             statuses.append("at limit")
         elif s.drifting:
