@@ -100,7 +100,7 @@ def cmd_firmware(args) -> int:
     from ..tester.ports import find_tester, probe
     port = args.port or find_tester()
     if args.action == "version":
-        hello = probe(port, timeout=3.0)
+        hello = probe(port, timeout=args.wait_s or 3.0)
         if hello is None:
             raise GlowtraceError(f"no glowtrace firmware answered on {port}")
         res = {k: hello.get(k) for k in ("firmware", "protocol", "board", "reset_cause")}
@@ -110,7 +110,8 @@ def cmd_firmware(args) -> int:
             f"{port}: firmware {r['firmware']} (protocol {r['protocol']}) on {r['board']}, "
             f"calibration {r['calibration']}; this glowtrace installs {r['this_glowtrace_installs']}"))
         return 0
-    hello = firmware_install.install(port, progress=lambda m: ui.err.print(m))
+    hello = firmware_install.install(port, progress=lambda m: ui.err.print(m),
+                                     wait_s=args.wait_s or firmware_install.ANSWER_WAIT_S)
     ui.emit(args, {"port": port, "firmware": hello["firmware"], "board": hello["board"]},
           lambda r: ui.out.print(f"Installed firmware {r['firmware']} on {r['board']} ({port})."))
     return 0
@@ -145,4 +146,7 @@ def register(sub, common) -> None:
     s = sub.add_parser("firmware", parents=[common], help="install or query the firmware")
     s.add_argument("action", choices=["install", "version"])
     s.add_argument("--port", help="serial device (default: the board found on USB)")
+    s.add_argument("--wait-s", type=number(0, 600, above=True),
+                   help="how long to wait for the board's answer, s (default: 3 for version, "
+                        "20 after an install's restart; more for an emulated board)")
     s.set_defaults(func=cmd_firmware)

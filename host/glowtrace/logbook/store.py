@@ -187,16 +187,23 @@ def _m7_tester_records(db: sqlite_utils.Database) -> None:
     rows = db.execute("SELECT uuid, hello FROM captures WHERE source = 'tester' "
                       "AND hello IS NOT NULL").fetchall()
     for uuid, text in rows:
-        h = _keep_hello(db.conn, json.loads(text))
-        db.execute("UPDATE captures SET hello_hash = ?, hello = NULL WHERE uuid = ?", [h, uuid])
+        h, own = _keep_hello(db.conn, json.loads(text))
+        db.execute("UPDATE captures SET hello_hash = ?, hello = ? WHERE uuid = ?",
+                   [h, own, uuid])
 
 
-def _keep_hello(conn, hello: dict) -> str:
-    """The record's key, after storing it if it is new."""
-    text = json.dumps(hello, sort_keys=True)
+# what a HELLO says of this connection, not of the board: kept in the capture row
+HELLO_OF_THE_MOMENT = ("boot", "reset_cause")
+
+
+def _keep_hello(conn, hello: dict) -> tuple[str, str]:
+    """(the board's record's key, after storing it if it is new; the JSON of
+    what the HELLO says of this moment only, for the capture's row)."""
+    board = {k: v for k, v in hello.items() if k not in HELLO_OF_THE_MOMENT}
+    text = json.dumps(board, sort_keys=True)
     h = hashlib.sha256(text.encode()).hexdigest()
     conn.execute("INSERT OR IGNORE INTO tester_records (hash, hello) VALUES (?, ?)", [h, text])
-    return h
+    return h, json.dumps({k: hello[k] for k in HELLO_OF_THE_MOMENT if k in hello})
 
 
 _MARK_CURRENT = """UPDATE section_metrics SET current = (version = (
@@ -436,7 +443,7 @@ class Store:
                         "label = ?", [raw.tube]):
                     _insert(conn, "tubes", {"label": raw.tube, "type": tube_type,
                                             "notes": notes, "created_at": _now()})
-                row["hello_hash"] = _keep_hello(conn, raw.hello)
+                row["hello_hash"], row["hello"] = _keep_hello(conn, raw.hello)
                 _insert(conn, "captures", row)
                 _insert(conn, "capture_samples", {
                     "capture_uuid": raw.uuid, "encoding": samples_codec.ENCODING,
@@ -538,9 +545,12 @@ class Store:
             started_at=c["started_at"], uuid=c["uuid"])
 
     def _hello(self, capture: dict) -> dict:
-        if capture["hello"] is not None:
-            return json.loads(capture["hello"])
-        return json.loads(self.db["tester_records"].get(capture["hello_hash"])["hello"])
+        """The HELLO as received: the board's record, and what was of the moment."""
+        own = json.loads(capture["hello"]) if capture["hello"] else {}
+        if not capture.get("hello_hash"):  # imported curves keep theirs whole
+            return own
+        return {**json.loads(self.db["tester_records"].get(capture["hello_hash"])["hello"]),
+                **own}
 
     def list_captures(self, tube: str | None = None) -> list[dict]:
         where, args = ("WHERE c.tube = ?", [tube]) if tube else ("", [])

@@ -76,9 +76,14 @@ def _leave_firmware(port: str) -> bool:
         return False
 
 
+ANSWER_WAIT_S = 20.0  # a board's restart after the install: USB, the REPL window, imports
+
+
 def install(port: str, run=subprocess.run, settle_s: float = 3.0, handshake=None,
-            progress=print) -> dict:
-    """Build, copy, reset, and check that the board answers with this version."""
+            progress=print, wait_s: float = ANSWER_WAIT_S) -> dict:
+    """Build, copy, reset, and check that the board answers with this version
+    (asking again until wait_s has passed: a board takes its time to come
+    back, an emulated one ten times as long)."""
     if port.startswith("glowsim://"):
         raise GlowtraceError("the simulated tester runs the firmware from this checkout; "
                              "there is nothing to install")
@@ -98,7 +103,10 @@ def install(port: str, run=subprocess.run, settle_s: float = 3.0, handshake=None
                                      "board plugged in, and no other program using the port?")
         progress("copied; the board restarts")
     time.sleep(settle_s)
+    deadline = time.monotonic() + wait_s
     hello = (handshake or _handshake)(port)
+    while hello is None and time.monotonic() < deadline:
+        hello = (handshake or _handshake)(port)
     if hello is None:
         raise GlowtraceError("the board did not answer after the install: see what it says "
                              f"with `mpremote connect {port} repl`")

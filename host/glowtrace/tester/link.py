@@ -37,12 +37,18 @@ class Link:
         self.rx = bytearray()
         self.expect_seq = None
         self.stats = LinkStats()
+        # the first write starts with a delimiter: the tester's decoder drops
+        # any half frame it held, and a board still in its boot window
+        # (firmware/main.py) knows a glowtrace host from a REPL tool's Ctrl-C
+        self._delimited = False
 
     def reset_stats(self) -> None:
         self.stats = LinkStats()
 
     def send(self, mtype: int, body: bytes = b"") -> None:
         data = protocol.pack(mtype, self.seq, body)
+        if not self._delimited:
+            data, self._delimited = b"\x00" + data, True
         self.seq = (self.seq + 1) & 0xFFFF
         try:
             self.port.write(data)
