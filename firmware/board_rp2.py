@@ -3,10 +3,16 @@
 # come from frontend.json on the board's flash (a copy of
 # schematics/frontend.json), so firmware, simulator and host agree.
 #
-# Dense phase: the ADC free-runs in round-robin over the fitted channels and
-# DMA moves results to RAM, so USB traffic cannot stall sampling; the CPU
+# Every phase: the ADC free-runs in round-robin over the channels in use,
+# paced by its own clock divider, and DMA moves each conversion to RAM, so
+# neither USB traffic nor the interpreter's speed can skew the timing; the CPU
 # watches DMA progress and switches off on over-current within a few sets.
-# Slower phases: conversions paced by ticks_us and summed (oversampling).
+# An oversampled set's conversions are spread evenly over its interval and
+# summed once the transfer is done. (Sampling paced by ticks_us in Python
+# could not keep up: on the emulated chip, 8 conversions of 2 channels every
+# 250 us ran late, and the sets were stamped with times they were not taken
+# at. It is left for intervals the divider cannot reach.)
+import array
 import json
 import select
 import sys
@@ -35,6 +41,25 @@ _FE_PATH = "/frontend.json"
 _CAL_PATH = "/calibration.json"
 REPL_FLAG = "/glowtrace_repl"
 
+# the ADC divider is 16 bits of integer: at most 65536 / 48 MHz between conversions
+_MAX_CONVERSION_US = const(1300)
+
+
+@micropython.native
+def _sum_sets(raw, buf, n_sets, oversample, nch):
+    """buf[k * nch + c] = the sum of set k's oversample conversions of channel
+    c, from raw in round-robin order ((k * oversample + r) * nch + c)."""
+    for k in range(n_sets):
+        base = k * oversample * nch
+        for c in range(nch):
+            s = 0
+            i = base + c
+            for _ in range(oversample):
+                s += raw[i]
+                i += nch
+            buf[k * nch + c] = s
+
+
 _RESET_NAMES = {}
 for _n in ("PWRON_RESET", "WDT_RESET", "HARD_RESET", "SOFT_RESET", "DEEPSLEEP_RESET"):
     if hasattr(machine, _n):
@@ -54,12 +79,14 @@ class Rp2Board:
         self.fe = fe
         self.frontend = fe
         self.switch = heater_pins(fe)
+        self._gates = (self.switch[0].value, self.switch[1].value)
         self.mask = 0
         self.range_pin = machine.Pin(fe["gpio"]["range_high"], machine.Pin.OUT, value=0)
         self.channels = frontend.channel_names(fe, fitted_optional)
         self.inputs = [c["adc_input"] for c in fe["channels"] if c["name"] in self.channels]
         self.adcs = [machine.ADC(i) for i in self.inputs]
         self.active = list(range(len(self.channels)))
+        self._raw = array.array("H")  # conversions of oversampled sets, before summing
         self.temp_adc = machine.ADC(4)
         self.ranges = list(fe["current_ranges"])
         self.board_id = "rp2-" + "".join("%02x" % b for b in machine.unique_id())
@@ -89,10 +116,16 @@ class Rp2Board:
 
     # switch and ranges
     def heater(self, mask):
-        self.switch[0].value(mask & 1)
-        self.switch[1].value((mask >> 1) & 1)
+        # the time of the switching, read just before the gate writes (bound
+        # methods ready, nothing in between): read after them it was about
+        # 50 us late on the emulated RP2040, and every set was stamped that
+        # much early against the heater's switch-on
+        gate_a, gate_b = self._gates
+        t = time.ticks_us()
+        gate_a(mask & 1)
+        gate_b((mask >> 1) & 1)
         self.mask = mask
-        return time.ticks_us()
+        return t
 
     def heater_state(self):
         return self.mask
@@ -137,8 +170,10 @@ class Rp2Board:
         self.active = [self.channels.index(n) for n in names]
 
     def sample(self, buf, n_sets, t_start, interval, oversample, trip_code, current_idx):
-        if oversample == 1 and interval < 100:
-            return self._sample_dma(buf, n_sets, t_start, interval, trip_code, current_idx)
+        per_conversion_us = interval / (oversample * len(self.active))
+        if 2 <= per_conversion_us <= _MAX_CONVERSION_US:
+            return self._sample_dma(buf, n_sets, t_start, interval, oversample, trip_code,
+                                    current_idx)
         return self._sample_paced(buf, n_sets, t_start, interval, oversample,
                                   trip_code, current_idx)
 
@@ -169,15 +204,24 @@ class Rp2Board:
         self.wdt.feed()
         return n_sets, t0, False
 
-    def _sample_dma(self, buf, n_sets, t_start, interval, trip_code, current_idx):
+    def _sample_dma(self, buf, n_sets, t_start, interval, oversample, trip_code, current_idx):
         inputs = [self.inputs[c] for c in self.active]
         nch = len(inputs)
-        total = n_sets * nch
+        total = n_sets * oversample * nch
+        # the conversions go to buf itself when a set is one conversion, else
+        # to a scratch buffer, summed into buf afterwards
+        if oversample == 1:
+            raw = buf
+        else:
+            if len(self._raw) < total:
+                self._raw = array.array("H", bytes(2 * total))
+            raw = self._raw
         mask = 0
         for i in inputs:
             mask |= 1 << i
-        # conversion every interval/nch us, round robin from the lowest input
-        div = (_ADC_CLOCK_HZ * interval // (1000000 * nch)) - 1
+        # a conversion every interval/(oversample*nch) us, round robin from the
+        # lowest input
+        div = (_ADC_CLOCK_HZ * interval // (1000000 * oversample * nch)) - 1
         machine.mem32[_ADC_CS] = 1  # enable, stopped
         machine.mem32[_ADC_FCS] = (1 << 0) | (1 << 3) | (1 << 24)  # FIFO, DREQ, thresh 1
         while not machine.mem32[_ADC_FCS] & (1 << 8):  # drain stale results
@@ -187,22 +231,21 @@ class Rp2Board:
         ainsel_shift = 12
         dma = rp2.DMA()
         ctrl = dma.pack_ctrl(size=1, inc_read=False, inc_write=True, treq_sel=_DREQ_ADC)
-        dma.config(read=_ADC_FIFO, write=buf, count=total, ctrl=ctrl, trigger=True)
+        dma.config(read=_ADC_FIFO, write=raw, count=total, ctrl=ctrl, trigger=True)
         while time.ticks_diff(t_start, time.ticks_us()) > 0:
             pass
         t0 = time.ticks_us()
         machine.mem32[_ADC_CS] = (1 | (1 << 3) | (inputs[0] << ainsel_shift)
                                   | (mask << rr_shift))
         tripped = False
-        checked = 0
+        checked = 0  # conversion rounds (one of every channel) looked at
         try:
             while dma.active():
-                done = total - dma.count
-                last_set = done // nch
-                while checked < last_set:
+                done = (total - dma.count) // nch
+                while checked < done:
                     base = checked * nch
                     for c in current_idx:
-                        if buf[base + c] > trip_code:
+                        if raw[base + c] > trip_code:
                             tripped = True
                     checked += 1
                 if tripped:
@@ -213,7 +256,10 @@ class Rp2Board:
             machine.mem32[_ADC_FCS] = 0  # FIFO off: paced phases read RESULT
             remaining = dma.count
             dma.close()
-        done = (total - remaining) // nch if tripped else n_sets
+        # after a trip, the whole sets only (the trip record has its time)
+        done = (total - remaining) // (oversample * nch) if tripped else n_sets
+        if oversample > 1:
+            _sum_sets(raw, buf, done, oversample, nch)
         self.wdt.feed()
         return done, t0, tripped
 

@@ -99,11 +99,16 @@ class Capture:
         self.sets += count
         self.link.poll()  # heartbeats and abort between blocks
 
-    def _send_dense(self, pending, dense, dense_buf, all_of_them):
-        """One pending dense block (all of them once the capture stops)."""
+    def _send_dense(self, pending, dense, dense_buf, all_of_them, base=None):
+        """One pending block of the baseline or the dense phase (all of them
+        once the capture stops); the baseline's `first` is None."""
         while pending:
             t_rel, first, count = pending.pop(0)
-            self.send_block(1, t_rel, dense[2], dense[3], dense_buf, first, count)
+            if first is None:
+                bl = schedule.BASELINE
+                self.send_block(0, t_rel, bl[2], bl[3], base, 0, count)
+            else:
+                self.send_block(1, t_rel, dense[2], dense[3], dense_buf, first, count)
             if not all_of_them:
                 return
 
@@ -141,12 +146,13 @@ class Capture:
             bl = schedule.BASELINE
             n_base, t_base, _ = b.sample(buf, bl[4], b.now_us(), bl[2], bl[3], 0, ())
             offsets = _means(buf, nch, 0, n_base, range(nch), bl[3])
-            base = bytes(memoryview(buf)[:n_base * nch])
+            base = array.array("H", bytes(memoryview(buf)[:n_base * nch]))
+            # switch-on, and the dense phase at once: nothing that talks USB
+            # in between (sending the baseline first cost the first 8 ms of
+            # the inrush on the emulated RP2040); the baseline goes after it
             t_on = b.heater(SECTION_MASKS[p["section"]])
             self.sup.heard_host()
-            base_arr = array.array("H", base)
-            self.send_block(0, time.ticks_diff(t_base, t_on), bl[2], bl[3],
-                            base_arr, 0, n_base)
+            pending.append((time.ticks_diff(t_base, t_on), None, n_base))
             rel = 0
             for phase_no, ph in enumerate(phases, 1):
                 name, end_us, interval, osm, block_sets, chunk_sets = ph
@@ -160,15 +166,18 @@ class Capture:
                     rel_first = time.ticks_diff(t_first, t_on)
                     if tripped:
                         t_off_rel = rel_first + (done - 1) * interval
-                    for k in range(0, done, block_sets):
-                        count = min(block_sets, done - k)
-                        if phase_no == 1:
-                            pending.append((rel_first + k * interval, k, count))
-                        else:
-                            self.send_block(phase_no, rel_first + k * interval, interval,
-                                            osm, buf, k, count)
+                    if phase_no == 1:
+                        for k in range(0, done, block_sets):
+                            pending.append((rel_first + k * interval, k,
+                                            min(block_sets, done - k)))
+                    # one held block (the baseline, then the dense phase's)
+                    # before each later chunk's own: all of them after a trip
                     if pending and (phase_no > 1 or tripped):
-                        self._send_dense(pending, dense, dense_buf, tripped)
+                        self._send_dense(pending, dense, dense_buf, tripped, base)
+                    if phase_no > 1:
+                        for k in range(0, done, block_sets):
+                            self.send_block(phase_no, rel_first + k * interval, interval,
+                                            osm, buf, k, min(block_sets, done - k))
                     rel = rel_first + done * interval
                     tail = min(block_sets, done)
                     means = _means(into, nch, done - tail, tail, self.current_idx, osm)
@@ -198,7 +207,7 @@ class Capture:
             t_off = b.heater(0)
             b.use_channels(b.channels)
         if pending:  # a capture that ended in the fast phase: the rest, heater off
-            self._send_dense(pending, dense, dense_buf, True)
+            self._send_dense(pending, dense, dense_buf, True, base)
         if t_on is None:
             t_on = t_off
         if t_off_rel is None:

@@ -13,8 +13,12 @@
 //      adc <ch> <raw12>                  set ADC channel value (0..4)
 //      adcsine <ch> <mid> <amp> <hz>     ADC channel follows a sine of emulated time
 //      adcramp <ch>                      ADC channel returns an incrementing counter (0..4095) per conversion
+//      adctable <json>                   (glowtrace) ADC channel follows a table of codes against the
+//                                        time since a gate pin went high: {"ch", "gate", "off",
+//                                        "t_us": [...], "code": [...]}; "off" while the gate is low
+//                                        (the heater model's curve, replayed in emulated time)
 //      gpio [pin]                        print GPIO output state(s)
-//      setin <pin> <0|1>                 drive a GPIO input
+//      setin <pin> <0|1>                 drive a GPIO input (glowtrace: kept across resets)
 //      stats                             emulated time, wall time, speed ratio, instructions
 //      saveflash [file]                  write flash image
 //      reset                             hard reset (keeps flash)
@@ -107,6 +111,8 @@ let savedFlash = null;
 if (flashFile && fs.existsSync(flashFile)) savedFlash = new Uint8Array(fs.readFileSync(flashFile));
 const adcFns = [null, null, null, null, null];
 const adcValues = [0, 0, 0, 0, 0];
+const gateHighSince = {}; // pin -> emulated ns it went high (null: low)
+const pinInputs = {}; // pin -> input level driven from outside (setin), kept across resets
 let adcConversions = 0;
 const inputQueue = [];
 let cdcConnected = false;
@@ -184,6 +190,9 @@ function boot() {
   // GPIO observation
   mcu.gpio.forEach((pin, i) => {
     pin.addListener((state, old) => {
+      const nowNs = emuBaseNanos + sim.clock.nanos;
+      if (state === GPIOPinState.High && old !== GPIOPinState.High) gateHighSince[i] = nowNs;
+      if (state !== GPIOPinState.High) gateHighSince[i] = null;
       const msg = `gpio ${i} ${GPIOPinState[state]} (was ${GPIOPinState[old]}) t_us=${Math.round((emuBaseNanos + sim.clock.nanos) / 1000)}`;
       if (gpioLog) log(msg);
       ctlBroadcast('event ' + msg);
@@ -202,6 +211,7 @@ function boot() {
     for (const c of clients) c.write(b);
   };
 
+  for (const [pin, v] of Object.entries(pinInputs)) mcu.gpio[+pin].setInputValue(v);
   mcu.core.PC = 0x10000000;
 }
 
@@ -299,6 +309,24 @@ function handleCmd(line) {
         adcFns[ch] = (ns) => mid + amp * Math.sin(2 * Math.PI * hz * ns * 1e-9);
         return 'ok';
       }
+      case 'adctable': {
+        const t = JSON.parse(a.join(' '));
+        const ts = t.t_us, cs = t.code;
+        adcFns[t.ch] = (ns) => {
+          const since = gateHighSince[t.gate];
+          if (since == null) return t.off;
+          const us = (ns - since) / 1000;
+          if (us <= ts[0]) return cs[0];
+          if (us >= ts[ts.length - 1]) return cs[cs.length - 1];
+          let lo = 0, hi = ts.length - 1;
+          while (hi - lo > 1) {
+            const mid = (lo + hi) >> 1;
+            if (ts[mid] <= us) lo = mid; else hi = mid;
+          }
+          return cs[lo] + (cs[hi] - cs[lo]) * (us - ts[lo]) / (ts[hi] - ts[lo]);
+        };
+        return 'ok';
+      }
       case 'adcramp': {
         let k = 0;
         adcFns[+a[0]] = () => k++ & 0xfff;
@@ -311,7 +339,10 @@ function handleCmd(line) {
         }
         return `gpioValues=0x${(mcu.gpioValues >>> 0).toString(16)}`;
       case 'setin':
-        mcu.gpio[+a[0]].setInputValue(!!+a[1]);
+        // (glowtrace) kept and applied again at every boot: what drives a pin
+        // from outside (a pull-up resistor, a switch) outlives a reset
+        pinInputs[+a[0]] = !!+a[1];
+        mcu.gpio[+a[0]].setInputValue(pinInputs[+a[0]]);
         return 'ok';
       case 'stats':
         return stats();
