@@ -127,6 +127,13 @@ class SimBoard:
     def heater_state(self):
         return self.mask
 
+    def switch_on(self, mask, buf, n_sets, interval, oversample, trip_code, current_idx):
+        """The heater on, then the dense phase from that instant (the
+        simulated converter needs no arming)."""
+        t_on = self.heater(mask)
+        return t_on, self.sample(buf, n_sets, t_on, interval, oversample, trip_code,
+                                 current_idx)
+
     def set_range(self, name):
         self.range = name
         self.amps_per_volt = self.fe["current_ranges"][name]["amps_per_volt"]

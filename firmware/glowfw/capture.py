@@ -147,12 +147,6 @@ class Capture:
             n_base, t_base, _ = b.sample(buf, bl[4], b.now_us(), bl[2], bl[3], 0, ())
             offsets = _means(buf, nch, 0, n_base, range(nch), bl[3])
             base = array.array("H", bytes(memoryview(buf)[:n_base * nch]))
-            # switch-on, and the dense phase at once: nothing that talks USB
-            # in between (sending the baseline first cost the first 8 ms of
-            # the inrush on the emulated RP2040); the baseline goes after it
-            t_on = b.heater(SECTION_MASKS[p["section"]])
-            self.sup.heard_host()
-            pending.append((time.ticks_diff(t_base, t_on), None, n_base))
             rel = 0
             for phase_no, ph in enumerate(phases, 1):
                 name, end_us, interval, osm, block_sets, chunk_sets = ph
@@ -160,9 +154,21 @@ class Capture:
                 into = dense_buf if phase_no == 1 else buf
                 while reason is None and rel < end:
                     n = min(chunk_sets, (end - rel + interval - 1) // interval)
-                    done, t_first, tripped = b.sample(
-                        into, n, time.ticks_add(t_on, rel), interval, osm,
-                        trip_code, self.current_idx)
+                    if t_on is None:
+                        # switch-on with the converter already running, and
+                        # nothing that talks USB before the dense phase is in
+                        # (on the emulated RP2040 the baseline block sent
+                        # first cost 8 ms of the inrush); the baseline is
+                        # sent after it
+                        t_on, (done, t_first, tripped) = b.switch_on(
+                            SECTION_MASKS[p["section"]], into, n, interval, osm,
+                            trip_code, self.current_idx)
+                        self.sup.heard_host()
+                        pending.append((time.ticks_diff(t_base, t_on), None, n_base))
+                    else:
+                        done, t_first, tripped = b.sample(
+                            into, n, time.ticks_add(t_on, rel), interval, osm,
+                            trip_code, self.current_idx)
                     rel_first = time.ticks_diff(t_first, t_on)
                     if tripped:
                         t_off_rel = rel_first + (done - 1) * interval

@@ -41,6 +41,10 @@ class FakeBoard:
     def heater_state(self):
         return self.mask
 
+    def switch_on(self, mask, buf, n, interval, osm, trip_code, current_idx):
+        t_on = self.heater(mask)
+        return t_on, self.sample(buf, n, t_on, interval, osm, trip_code, current_idx)
+
     def set_range(self, name):
         self.range = name
 

@@ -17,6 +17,9 @@ class Curve:
     light: np.ndarray | None
 
 
+ZERO_GUARD_US = 500
+
+
 def to_physical(raw: RawCapture) -> Curve:
     """Amps and volts with the calibration the capture was made with. The
     current channels' zero is their reading before switch-on (heater off)."""
@@ -24,7 +27,9 @@ def to_physical(raw: RawCapture) -> Curve:
     cal = raw.hello.get("calibration")
     t_us, sums, osm = raw.arrays()
     mean = sums / osm[:, None].astype(float)
-    base = t_us < 0
+    # the zero: the baseline before switch-on, not the sets taken around the
+    # switching itself (the rp2 starts its converter before closing the gate)
+    base = t_us < -ZERO_GUARD_US
     offsets = mean[base].mean(axis=0) if base.any() else np.zeros(mean.shape[1])
     rng = raw.params.get("range", "low")
     amps = {}
