@@ -186,7 +186,10 @@ class Capture:
                                             osm, buf, k, min(block_sets, done - k))
                     rel = rel_first + done * interval
                     tail = min(block_sets, done)
-                    means = _means(into, nch, done - tail, tail, self.current_idx, osm)
+                    # no whole set (an rp2 trip in a chunk's first set): the
+                    # supervisor still hears of the trip
+                    means = (_means(into, nch, done - tail, tail, self.current_idx, osm)
+                             if tail else [0.0] * len(self.current_idx))
                     cause = self.sup.check(rel, min(means), tripped)
                     if cause is not None:
                         reason = "trip"

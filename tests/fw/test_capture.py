@@ -127,3 +127,20 @@ def test_measure_trips_on_a_short_and_refuses_long_or_unknown():
         except ParamError:
             continue
         raise AssertionError("accepted " + repr(bad))
+
+
+def test_a_trip_with_no_whole_set_is_still_an_over_current():
+    # the rp2 keeps whole oversampled sets only: a trip in a chunk's first set
+    # leaves none, and must still be reported as the over-current it is
+    class TripInFirstSet(FakeBoard):
+        def sample(self, buf, n, t_start, interval, osm, trip_code, current_idx):
+            if osm > 1 and self.mask:
+                self.heater(0)
+                return 0, max(t_start, self.t), True
+            return FakeBoard.sample(self, buf, n, t_start, interval, osm, trip_code,
+                                    current_idx)
+    b = TripInFirstSet()
+    fr = run(b, {"section": "A"})
+    trip = json.loads(bytes(by_type(fr, proto.TRIP)[0][2]))
+    assert trip["cause"] == "over_current", trip
+    assert b.mask == 0
