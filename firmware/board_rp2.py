@@ -186,9 +186,7 @@ class Rp2Board:
         trip_sum = trip_code * oversample
         while time.ticks_diff(t_start, time.ticks_us()) > 0:
             pass
-        if self._on_mask:  # switch_on() without the DMA
-            self._t_on = self.heater(self._on_mask)
-            self._on_mask = 0
+        self._close_armed_gates()  # switch_on() without the DMA
         t0 = time.ticks_us()
         for k in range(n_sets):
             due = time.ticks_add(t0, k * interval)
@@ -223,6 +221,12 @@ class Rp2Board:
             self._on_mask = 0  # never left armed for a later sample() to switch on
         return self._t_on, got
 
+    def _close_armed_gates(self):
+        """The gates switch_on() armed, closed now (once), and when."""
+        if self._on_mask:
+            self._t_on = self.heater(self._on_mask)
+            self._on_mask = 0
+
     def _sample_dma(self, buf, n_sets, t_start, interval, oversample, trip_code, current_idx):
         inputs = [self.inputs[c] for c in self.active]
         nch = len(inputs)
@@ -256,9 +260,7 @@ class Rp2Board:
         t0 = time.ticks_us()
         machine.mem32[_ADC_CS] = (1 | (1 << 3) | (inputs[0] << ainsel_shift)
                                   | (mask << rr_shift))
-        if self._on_mask:  # switch_on(): the gates now, the converter running
-            self._t_on = self.heater(self._on_mask)
-            self._on_mask = 0
+        self._close_armed_gates()  # switch_on(): the converter is running
         tripped = False
         checked = 0  # conversion rounds (one of every channel) looked at
         try:

@@ -99,7 +99,7 @@ class Capture:
         self.sets += count
         self.link.poll()  # heartbeats and abort between blocks
 
-    def _send_dense(self, pending, dense, dense_buf, all_of_them, base=None):
+    def _send_held(self, pending, dense, dense_buf, all_of_them, base=None):
         """One pending block of the baseline or the dense phase (all of them
         once the capture stops); the baseline's `first` is None."""
         while pending:
@@ -119,12 +119,12 @@ class Capture:
         max_us = int(p["max_s"] * 1000000)
         phases = schedule.build(nch, max_us)
         # the dense phase's sets stay in their own buffer until sent, a block
-        # after each later chunk (spread, so the link never bursts)
+        # before each later chunk's own (spread, so the link never bursts)
         dense = phases[0]
         dense_buf = array.array("H", bytes(2 * nch * dense[5]))
         chunk = max([ph[5] for ph in phases[1:]] + [schedule.baseline_sets()])
         buf = array.array("H", bytes(2 * nch * chunk))
-        pending = []  # dense blocks still to send: (t_rel, first set, sets)
+        pending = []  # held blocks still to send: (t_rel, first set or None, sets)
         b.set_range(p["range"])
         trip_code = b.amps_to_code(p["range"], p["trip_a"])
         self.sup.arm(p["silence_ms"], int(p["max_on_s"] * 1000000),
@@ -179,7 +179,7 @@ class Capture:
                     # one held block (the baseline, then the dense phase's)
                     # before each later chunk's own: all of them after a trip
                     if pending and (phase_no > 1 or tripped):
-                        self._send_dense(pending, dense, dense_buf, tripped, base)
+                        self._send_held(pending, dense, dense_buf, tripped, base)
                     if phase_no > 1:
                         for k in range(0, done, block_sets):
                             self.send_block(phase_no, rel_first + k * interval, interval,
@@ -216,7 +216,7 @@ class Capture:
             t_off = b.heater(0)
             b.use_channels(b.channels)
         if pending:  # a capture that ended in the fast phase: the rest, heater off
-            self._send_dense(pending, dense, dense_buf, True, base)
+            self._send_held(pending, dense, dense_buf, True, base)
         if t_on is None:
             t_on = t_off
         if t_off_rel is None:

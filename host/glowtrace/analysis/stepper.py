@@ -44,26 +44,24 @@ except ImportError:  # pragma: no cover - the fallback is tested through py_func
 
 
 @njit(cache=True)
-def ratio(t, rt, st, t0, dt):
-    """The tungsten ratio at t (real or complex) from its table."""
-    n = len(rt) - 1
+def row(t, n, t0, dt):
+    """The table row of temperature t (real part), clamped to 0..n."""
     k = int((t.real - t0) / dt)
     if k < 0:
-        k = 0
-    elif k > n:
-        k = n
+        return 0
+    return n if k > n else k
+
+
+@njit(cache=True)
+def ratio(t, rt, st, t0, dt):
+    """The tungsten ratio at t (real or complex) from its table."""
+    k = row(t, len(rt) - 1, t0, dt)
     return rt[k] + (t - t0 - k * dt) * st[k]
 
 
 @njit(cache=True)
 def slope(t, st, t0, dt):
-    n = len(st) - 1
-    k = int((t.real - t0) / dt)
-    if k < 0:
-        k = 0
-    elif k > n:
-        k = n
-    return st[k]
+    return st[row(t, len(st) - 1, t0, dt)]
 
 
 @njit(cache=True)
@@ -194,5 +192,5 @@ def in_circuit(t, v_supply, r_series, c, rt, st, t0, dt, start_k):
     return r
 
 
-KERNELS = ("ratio", "slope", "phi", "coupled", "step", "resistance", "under_current",
+KERNELS = ("row", "ratio", "slope", "phi", "coupled", "step", "resistance", "under_current",
            "under_current_jacobian", "in_circuit")

@@ -583,9 +583,11 @@ def fleet_scores(tubes: list, cfg: dict, baselines: dict, noises: dict) -> dict:
     n_base = int(cfg["baseline"]["count"])
     out: dict = {}
     keys, gids, flat = [], [], []  # per section: (its scores, section, sigma by metric)
+    sigmas_of = {t: [max(cfg["noise_floor"][m], (noise or {}).get(m) or 0.0) for m in METRICS]
+                 for t, noise in noises.items()}
+    floors = [cfg["noise_floor"][m] for m in METRICS]
     for tube, sections in tubes:
-        noise = noises.get(tube["type"]) or {}
-        sigma = [max(cfg["noise_floor"][m], noise.get(m) or 0.0) for m in METRICS]
+        sigma = sigmas_of.get(tube["type"], floors)
         for sec, rows in sections.items():
             if (tube["label"], sec) in baselines or (rows and _excluded_fault(rows[-1])):
                 continue  # the user's baseline, or a heater fault: score_section
