@@ -35,7 +35,11 @@ _ADC_DIV = _ADC_BASE + 0x10
 # RP2350 value is from memory and is checked on the first RP2350 build
 _DREQ_ADC = 48 if _RP2350 else 36
 _ADC_CLOCK_HZ = const(48000000)
-_WDT_MS = const(8000)
+# the watchdog: a hang leaves the heater on until it fires, so it is short;
+# the longest stretch without a feed is the capture's end (every held block
+# to a host that does not read: about 1 s at 50 ms a frame)
+_WDT_MS = const(3000)
+_STALL_MARGIN_US = const(2000)  # a DMA transfer this much past its time has stalled
 _WRITE_WAIT_MS = const(50)  # longest wait to hand one frame to USB
 _FE_PATH = "/frontend.json"
 _CAL_PATH = "/calibration.json"
@@ -58,6 +62,22 @@ def _sum_sets(raw, buf, n_sets, oversample, nch):
                 s += raw[i]
                 i += nch
             buf[k * nch + c] = s
+
+
+@micropython.viper
+def _any_over(raw, first: int, end: int, nch: int, c: int, code: int) -> bool:
+    """Whether channel c exceeds code in conversion rounds first..end-1.
+    Compiled (viper): checked round by round in Python, the watch fell behind
+    the dense phase's 16 us rounds on the emulated RP2040, and a short at
+    3 ms was switched off at 8 ms."""
+    p = ptr16(raw)
+    i = first * nch + c
+    stop = end * nch
+    while i < stop:
+        if p[i] > code:
+            return True
+        i += nch
+    return False
 
 
 _RESET_NAMES = {}
@@ -263,22 +283,35 @@ class Rp2Board:
         self._close_armed_gates()  # switch_on(): the converter is running
         tripped = False
         checked = 0  # conversion rounds (one of every channel) looked at
+        # a converter that stops (no DREQ) would hold this loop, the heater
+        # on, until the watchdog: off and an error once the transfer is
+        # well past the time it takes
+        deadline = time.ticks_add(t0, n_sets * interval + (n_sets * interval >> 3)
+                                  + _STALL_MARGIN_US)
         try:
             while dma.active():
                 done = (total - dma.count) // nch
-                while checked < done:
-                    base = checked * nch
+                if done > checked:
                     for c in current_idx:
-                        if raw[base + c] > trip_code:
+                        if _any_over(raw, checked, done, nch, c, trip_code):
                             tripped = True
-                    checked += 1
-                if tripped:
+                    checked = done
+                    if tripped:
+                        self.heater(0)
+                        break
+                elif time.ticks_diff(time.ticks_us(), deadline) > 0:
                     self.heater(0)
-                    break
+                    raise OSError("converter stalled: %d of %d conversions"
+                                  % (total - dma.count, total))
         finally:
             machine.mem32[_ADC_CS] = 1  # stop free-running
             machine.mem32[_ADC_FCS] = 0  # FIFO off: paced phases read RESULT
             remaining = dma.count
+            # stopped early (a trip, a stall): the channel is aborted, else it
+            # stays busy on the converter's requests and the next capture's
+            # transfer, on the same channel, ran on with its count (seen on
+            # the emulated RP2040: the baseline after a trip "stalled")
+            dma.active(0)
             dma.close()
         # after a trip, the whole sets only (the trip record has its time)
         done = (total - remaining) // (oversample * nch) if tripped else n_sets

@@ -136,3 +136,152 @@ def test_a_short_capture_through_the_real_board_layer(installed, tmp_path):
     assert c.t_s[on][0] <= 16e-6, c.t_s[on][:3]
     assert abs(c.amps["A"][on].max() - ia.max() * lsb) <= 4 * lsb
     assert abs(np.median(c.volts[on]) - 6.3) < 0.02  # the voltage channel, not a current
+
+
+# --- the trips, timed from the gate's GPIO events in emulated time -----------
+
+CH = {c["name"]: c["adc_input"] for c in FRONTEND["channels"]}
+LOW = FRONTEND["current_ranges"]["low"]
+LSB_A = LOW["amps_per_volt"] * FRONTEND["adc"]["vref_v"] / (1 << FRONTEND["adc"]["bits"])
+
+
+def _feed_section_a(emu, t_us, codes, volts=6.3):
+    """Section A's current follows (t_us, codes) from its gate's rising edge."""
+    table = {"ch": CH["ia"], "gate": GATES[0], "off": 0, "t_us": list(t_us),
+             "code": list(codes)}
+    assert emu.command("adctable " + json.dumps(table)) == "ok"
+    v_code = int(_codes(volts / FRONTEND["voltage_divider"]["volts_per_volt"]))
+    assert emu.command(f"adc {CH['v']} {v_code}") == "ok"
+
+
+def _gate_on_and_off(emu, since: int) -> tuple[int, int]:
+    """Emulated times (us) the gate went high and then low after event `since`."""
+    ev = emu.gpio_events(GATES[0], since)
+    assert any(s == "High" for _, s in ev), (ev, emu.events[since:][-10:])
+    on = next(t for t, s in ev if s == "High")
+    off = next(t for t, s in ev if s == "Low" and t >= on)
+    assert "High" not in [s for _, s in emu.gpio_events(GATES[1], since)]
+    return on, off
+
+
+def _capture(emu, **params):
+    from glowtrace.tester.driver import connect
+    resets = emu.watchdog_resets_us()
+    with connect(emu.port, timeout=float(WAIT_S)) as t:
+        raw = t.capture("EMU", "A", {"max_s": 3, **params})
+    assert emu.watchdog_resets_us() == resets, "the watchdog fired during the capture"
+    return raw
+
+
+NORMAL_CODE = 1500  # a heater drawing about a third of the low range
+
+
+@pytest.mark.parametrize("short_at_us", [3000, 700000], ids=["dense phase", "mid phase"])
+def test_a_short_switches_the_gate_off_within_1_ms(installed, short_at_us):
+    """The current jumps to full scale at short_at_us after switch-on: the gate
+    is low within 1 ms of it (the first sample over the threshold is at or
+    after that instant, so this bounds the reaction from that sample too)."""
+    _feed_section_a(installed, [0, short_at_us, short_at_us + 1, 1e8],
+                    [NORMAL_CODE, NORMAL_CODE, 4095, 4095])
+    since = len(installed.events)
+    raw = _capture(installed)
+    assert raw.trip_cause == "over_current", (raw.trip, raw.end)
+    on, off = _gate_on_and_off(installed, since)
+    assert 0 <= off - (on + short_at_us) <= 1000, off - on
+
+
+def test_an_open_section_is_switched_off_after_the_open_check(installed):
+    _feed_section_a(installed, [0, 1e8], [0, 0])
+    since = len(installed.events)
+    raw = _capture(installed)
+    on, off = _gate_on_and_off(installed, since)
+    assert raw.trip_cause == "open_heater", (raw.trip, raw.end)
+    # the check runs once the dense phase (20 ms) is in; the firmware's work
+    # between the transfer and the check took 5.5 ms on the emulated chip
+    assert 20000 <= off - on <= 30000, off - on
+
+
+def test_a_stalled_converter_switches_off_at_once_not_at_the_watchdog(installed):
+    """Found on the emulator: a converter that stops held the DMA wait, the
+    heater on, until the watchdog fired."""
+    _feed_section_a(installed, [0, 1e8], [NORMAL_CODE, NORMAL_CODE])
+    assert installed.command(f"adcstall 1 {GATES[0]} 100000") == "ok"  # in the fast phase
+    since = len(installed.events)
+    try:
+        raw = _capture(installed)
+    finally:
+        assert installed.command("adcstall 0") == "ok"
+    on, off = _gate_on_and_off(installed, since)
+    assert raw.trip_cause == "exception" and "stalled" in raw.trip["detail"], raw.trip
+    # the wait's limit runs from its chunk's start: the fast phase's chunk
+    # (20 ms) plus an eighth and 2 ms; that chunk began at most a chunk and
+    # its sending (bench/rp2emu_bench.py) after the stall
+    assert off - (on + 100000) <= 24500 + 20000, off - on
+    assert not installed.watchdog_resets_us() or installed.watchdog_resets_us()[-1] < on
+
+
+def test_host_silence_switches_off(installed):
+    """The host sends the capture command, then nothing: the gate is low once
+    the silence passes silence_ms (checked after each chunk of sets)."""
+    from glowtrace.tester import protocol
+    from glowtrace.tester.link import Link
+    from glowtrace.tester.transport import open_port
+    _feed_section_a(installed, [0, 1e8], [NORMAL_CODE, NORMAL_CODE])
+    since = len(installed.events)
+    port = open_port(installed.port)
+    try:
+        link = Link(port)
+        link.send(protocol.CAPTURE, b'{"section": "A", "max_s": 10, "silence_ms": 1000}')
+        trip = None
+        import time
+        deadline = time.monotonic() + float(WAIT_S)
+        while trip is None and time.monotonic() < deadline:
+            f = link.receive(0.5)  # listen, never send
+            if f is not None and f.mtype == protocol.TRIP:
+                trip = f.json()
+    finally:
+        port.close()
+    assert trip is not None and trip["cause"] == "host_silent", trip
+    on, off = _gate_on_and_off(installed, since)
+    # heard last at switch-on; the mid phase's chunk is 100 ms of sets
+    assert 1000000 <= off - on <= 1000000 + 100000 + 5000, off - on
+
+
+def test_a_hang_is_ended_by_the_watchdog_with_the_gates_low_through_the_reset(installed):
+    """The core stops in a loop with interrupts off while the heater is on:
+    only the watchdog ends it; the gate stays as it was until the reset, the
+    board's pull-down holds it low through it, and the firmware that boots
+    drives it low and says why it reset."""
+    from glowtrace.tester import protocol
+    from glowtrace.tester.link import Link
+    from glowtrace.tester.transport import open_port
+    import time
+    _feed_section_a(installed, [0, 1e8], [NORMAL_CODE, NORMAL_CODE])
+    since = len(installed.events)
+    port = open_port(installed.port)
+    try:
+        Link(port).send(protocol.CAPTURE, b'{"section": "A", "max_s": 10}')
+        deadline = time.monotonic() + float(WAIT_S)
+        while not installed.gpio_events(GATES[0], since) and time.monotonic() < deadline:
+            time.sleep(0.05)
+        hung_at = int(installed.command("hang").split("t_us=")[1])
+        deadline = time.monotonic() + float(WAIT_S)
+        while (not [t for t in installed.watchdog_resets_us() if t > hung_at]
+               and time.monotonic() < deadline):
+            time.sleep(0.2)
+    finally:
+        port.close()
+    resets = [t for t in installed.watchdog_resets_us() if t > hung_at]
+    assert resets, ("the watchdog did not fire", hung_at, installed.watchdog_resets_us())
+    wdt_s = 3.0  # _WDT_MS in firmware/board_rp2.py
+    assert resets[0] - hung_at <= wdt_s * 1e6 + 10000, resets[0] - hung_at
+    hello = _version(installed.port)  # the firmware is back
+    assert hello["reset_cause"] == "wdt_reset"
+    ev = installed.gpio_events(GATES[0], since)
+    assert [s for _, s in ev if _ < hung_at] == ["High"]  # on, and then the hang
+    # through the reset the pin is an input with its pull-down (the board's
+    # gate resistor in hardware), then the firmware drives it low
+    after = [s for t, s in ev if t >= hung_at]
+    assert set(after) <= {"InputPullDown", "Low"} and after[-1] == "Low", ev
+    for pin in GATES:
+        assert "High" not in [s for t, s in installed.gpio_events(pin, since) if t >= hung_at]

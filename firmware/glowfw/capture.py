@@ -185,6 +185,13 @@ class Capture:
                             self.send_block(phase_no, rel_first + k * interval, interval,
                                             osm, buf, k, min(block_sets, done - k))
                     rel = rel_first + done * interval
+                    if phase_no == 1:
+                        # one acquisition: its first sets may precede the
+                        # gate by a few us (the rp2 starts the converter
+                        # first), and the few sets that leaves short of the
+                        # phase's end are not worth a second transfer, which
+                        # came after a 5 ms gap on the emulated RP2040
+                        rel = end if rel < end else rel
                     tail = min(block_sets, done)
                     # no whole set (an rp2 trip in a chunk's first set): the
                     # supervisor still hears of the trip

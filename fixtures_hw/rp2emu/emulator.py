@@ -176,10 +176,11 @@ class Rp2Emulator:
         self._ctl.sendall(line.encode() + b"\n")
         return self._replies.get(timeout=timeout)
 
-    def gpio_events(self, pin: int) -> list[tuple[int, str]]:
-        """(emulated time in us, state) of every change of a pin, in order."""
+    def gpio_events(self, pin: int, since: int = 0) -> list[tuple[int, str]]:
+        """(emulated time in us, state) of every change of a pin, in order,
+        from event number `since` on (len(emu.events) taken earlier)."""
         out = []
-        for e in list(self.events):
+        for e in list(self.events)[since:]:
             parts = e.split()
             if len(parts) >= 3 and parts[0] == "gpio" and parts[1] == str(pin):
                 t = next(int(p[5:]) for p in parts if p.startswith("t_us="))
@@ -188,7 +189,12 @@ class Rp2Emulator:
 
     def resets(self) -> int:
         """Watchdog resets seen so far."""
-        return sum(1 for e in self.events if e == "watchdog-reset")
+        return sum(1 for e in self.events if e.startswith("watchdog-reset"))
+
+    def watchdog_resets_us(self) -> list[int]:
+        """Emulated times (us) of the watchdog's resets."""
+        return [int(e.split("t_us=")[1]) for e in list(self.events)
+                if e.startswith("watchdog-reset")]
 
     def emulated_s(self) -> float:
         reply = self.command("stats")

@@ -17,6 +17,10 @@
 //                                        time since a gate pin went high: {"ch", "gate", "off",
 //                                        "t_us": [...], "code": [...]}; "off" while the gate is low
 //                                        (the heater model's curve, replayed in emulated time)
+//      adcstall <0|1> [gate after_us]    (glowtrace) conversions never complete (a converter fault);
+//                                        with a gate pin: once it has been high after_us
+//      hang                              (glowtrace) the core stops in a tight loop with interrupts
+//                                        off (a firmware hang): only the watchdog ends it
 //      gpio [pin]                        print GPIO output state(s)
 //      setin <pin> <0|1>                 drive a GPIO input (glowtrace: kept across resets)
 //      stats                             emulated time, wall time, speed ratio, instructions
@@ -114,6 +118,8 @@ const adcValues = [0, 0, 0, 0, 0];
 const gateHighSince = {}; // pin -> emulated ns it went high (null: low)
 const pinInputs = {}; // pin -> input level driven from outside (setin), kept across resets
 let adcConversions = 0;
+let adcStall = null; // (glowtrace) adcstall: {gate, afterUs} or null
+const HANG_AT = 0x20041f00; // (glowtrace) hang: a `b .` in scratch RAM
 const inputQueue = [];
 let cdcConnected = false;
 let clients = new Set();
@@ -164,6 +170,10 @@ function boot() {
   if (!opt('no-adc-fix', false)) patchADC(mcu.adc);
   for (let i = 0; i < 5; i++) mcu.adc.channelValues[i] = adcValues[i];
   mcu.adc.onADCRead = (channel) => {
+    if (adcStall) { // never completes: the converter has stopped
+      const since = adcStall.gate == null ? 0 : gateHighSince[adcStall.gate];
+      if (since != null && (emuBaseNanos + sim.clock.nanos - since) / 1000 >= adcStall.afterUs) return;
+    }
     adcConversions++;
     const fn = adcFns[channel];
     const v = fn ? fn(emuBaseNanos + sim.clock.nanos) : adcValues[channel];
@@ -182,7 +192,7 @@ function boot() {
     wd.timer.enable = false;
     if (pendingReset) return;
     log('watchdog triggered -> reset');
-    ctlBroadcast('event watchdog-reset');
+    ctlBroadcast(`event watchdog-reset t_us=${Math.round((emuBaseNanos + sim.clock.nanos) / 1000)}`);
     pendingReset = true;
     sim.stop();
   };
@@ -331,6 +341,17 @@ function handleCmd(line) {
         let k = 0;
         adcFns[+a[0]] = () => k++ & 0xfff;
         return 'ok';
+      }
+      case 'adcstall':
+        adcStall = +a[0] ? { gate: a.length > 1 ? +a[1] : null, afterUs: +(a[2] || 0) } : null;
+        // the conversion left hanging completes now: the converter works again
+        if (!adcStall && mcu.adc.busy) mcu.adc.sampleAlarm.schedule(mcu.adc.sampleTime * 1000);
+        return 'ok';
+      case 'hang': {
+        mcu.core.PM = true; // interrupts off: nothing but the watchdog runs
+        mcu.writeUint16(HANG_AT, 0xe7fe); // b .
+        mcu.core.PC = HANG_AT;
+        return `ok t_us=${Math.round((emuBaseNanos + sim.clock.nanos) / 1000)}`;
       }
       case 'gpio':
         if (a.length) {
