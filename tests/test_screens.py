@@ -92,7 +92,7 @@ def test_list_stock_and_records_at_every_width(demo_run, capsys, monkeypatch, wi
     rc, out, _ = screen(capsys, monkeypatch, width, "stock", "--db", str(db))
     assert_whole(out, width, [x for r in stock for x in (r["tube"], r["grade"] or "-",
                                                           r["status"])]
-                 + [f"{100 * v:+.1f}%" for r in stock for v in r["current_deviation"].values()])
+                 + [f"{100 * v:+.1f}" for r in stock for v in r["current_deviation"].values()])
 
     rc, out, _ = screen(capsys, monkeypatch, width, "owner", "list", "--db", str(db))
     from glowtrace.procedures.demo import CUSTOMERS, DEMO_TUBES

@@ -14,11 +14,11 @@ import sys
 
 from .. import __version__
 from ..errors import GlowtraceError
-from . import (analyze, captures, circuits, console, demo, hardware, judgement, logbook,
+from . import (analyze, captures, circuits, console, demo, hardware, judgement, logbook, session,
                tester)
 from .common import SAFETY_NOTE
 
-GROUPS = (tester, captures, analyze, logbook, judgement, circuits, hardware, demo)
+GROUPS = (tester, session, captures, analyze, logbook, judgement, circuits, hardware, demo)
 
 
 def _global_options(p: argparse.ArgumentParser, defaults: bool) -> None:

@@ -7,7 +7,7 @@ from rich.text import Text
 from .. import config, outfile
 from ..logbook.store import Store
 from . import console as ui
-from .common import db_path
+from .common import db_path, number
 from .tables import Col, fit, hanging
 
 # history's figure columns: analysis key, header, significant digits, priority
@@ -74,25 +74,80 @@ def cmd_stock(args) -> int:
     if args.csv:  # checked before the work, not after
         args.csv = str(outfile.check(args.csv, (".csv",), ".csv"))
     with Store(db_path(args), create=False) as store:
-        rows = stock.stock_rows(scoring.assess_fleet(store, cfg, args.type, args.owner))
+        rows = stock.stock_rows(scoring.assess_fleet(store, cfg, args.type,
+                                                     args.owner or args.lot))
+    rows = stock.select(rows, grade=args.grade, status=args.status, sort=args.sort)
     if args.csv:
         stock.write_stock_csv(rows, args.csv)
         ui.err.print(f"wrote {args.csv}", markup=False)
 
+    def per_section(d: dict, form) -> str:
+        # sections named: "A 0.150 B 0.152", not two bare numbers
+        return " ".join(f"{s} {form(v)}" for s, v in d.items()) or "-"
+
     def render(rows):
+        if not rows:
+            ui.out.print("No tubes match.", markup=False)
+            return
         table = [[r["tube"], r["type"] or "", r["owner"] or "", r["grade"] or "-",
                   ui.status_text(r["status"]),
-                  " ".join(f"{v:.4g}" for v in r["rated_hot_current_a"].values()) or "-",
-                  " ".join(f"{100 * v:+.1f}%" for v in r["current_deviation"].values()) or "-",
-                  " ".join(f"{v:.2g}" for v in r["flash_index"].values()) or "-",
+                  per_section(r["rated_hot_current_a"], lambda v: f"{v:.4g}"),
+                  per_section(r["current_deviation"], lambda v: f"{100 * v:+.1f}"),
+                  per_section(r["flash_index"], lambda v: f"{v:.2g}"),
                   ui.fmt(r["section_imbalance"], 2)] for r in rows]
-        fit(ui.out, [Col("tube"), Col("type", priority=1), Col("owner", priority=3),
-                     Col("grade"), Col("status"), Col("hot A at rated V", priority=2),
-                     Col("vs rated"), Col("flash", priority=2),
-                     Col("imbalance", priority=4)], table,
-            caption=f"Grades: {rows[0]['scope']}." if rows else None)
+        fit(ui.out, [Col("tube"), Col("type", priority=1), Col("owner/lot", priority=3),
+                     Col("grade"), Col("status"), Col("hot current at rated V, A", priority=2),
+                     Col("vs rated %"), Col("flash index", priority=2),
+                     Col("imbalance %", priority=4)], table,
+            title=f"Stock, {len(rows)} tube(s): {rows[0]['scope']}",
+            caption="Per section (A, B). vs rated: hot current against the type's rating. "
+                    "Reasons per tube: `glowtrace history LABEL` or --json.")
     if args.json or not args.csv:
         ui.emit(args, rows, render)
+    return 0
+
+
+def cmd_match(args) -> int:
+    from .. import catalogue
+    from ..errors import GlowtraceError
+    from ..judgement import matching, scoring
+    cfg = config.load(args.config)
+    type_name = catalogue.load().get(args.type).name
+    kind = matching.FIGURES[args.by][3]
+    tol = (matching.DEFAULT_TOLERANCE[args.by] if args.tolerance is None
+           else args.tolerance / 100 if kind == "relative" else args.tolerance)
+    with Store(db_path(args), create=False) as store:
+        owner = args.owner or args.lot
+        tubes = scoring.assess_fleet(store, cfg, type_name, owner)
+    if not tubes:
+        raise GlowtraceError(f"no tubes of type {type_name} in the logbook"
+                             + (f" for {owner!r}" if owner else ""))
+    values, missing = matching.tube_figures(tubes, args.by)
+    sets, left = matching.best_sets(values, args.size, tol, kind)
+    key, words, unit, _ = matching.FIGURES[args.by]
+    result = {"type": type_name, "by": key, "size": args.size, "tolerance": tol,
+              "tolerance_kind": kind, "method": "optimal: dynamic programming over the "
+              "sorted figure (most sets, then least total spread)",
+              "sets": [{"tubes": s.tubes, "values": s.values, "spread": s.spread,
+                        "relative_spread": s.relative} for s in sets],
+              "left_over": left, "without_figure": missing, "scope": matching.SCOPE}
+
+    def render(r):
+        tol_text = f"{100 * tol:g} %" if kind == "relative" else f"{tol:g} {unit}".strip()
+        rows = [[str(n), " ".join(s["tubes"]),
+                 " ".join(f"{v:.4g}" for v in s["values"]),
+                 f"{s['spread']:.3g}", f"{100 * s['relative_spread']:.2f} %"]
+                for n, s in enumerate(r["sets"], 1)]
+        fit(ui.out, [Col("set", justify="right"), Col("tubes"), Col(f"{words} ({unit})".replace(" ()", "")),
+                     Col("spread", justify="right"), Col("of mean", justify="right", priority=1)],
+            rows, title=f"{type_name}: sets of {args.size} within {tol_text}",
+            caption=f"{len(r['sets'])} set(s); {r['method']}. Scope: {r['scope']}.")
+        if r["left_over"]:
+            ui.out.print("Left over: " + ", ".join(r["left_over"]), markup=False)
+        if r["without_figure"]:
+            ui.out.print("No figure yet (no analysed capture): " + ", ".join(r["without_figure"]),
+                         markup=False)
+    ui.emit(args, result, render)
     return 0
 
 
@@ -120,10 +175,36 @@ def register(sub, common) -> None:
     s = sub.add_parser("stock", parents=[common],
                        help="every tube with grade and key figures (dealers)")
     s.add_argument("--csv", metavar="FILE", help="write the list as CSV")
-    s.add_argument("--type")
-    s.add_argument("--owner")
+    s.add_argument("--type", help="only this type")
+    s.add_argument("--owner", help="only this owner's tubes (any case)")
+    s.add_argument("--lot", help="only this lot's tubes (any case)")
+    s.add_argument("--grade", help="only this grade")
+    s.add_argument("--status", help="only this status, e.g. 'at limit'")
+    s.add_argument("--sort", choices=["tube", "type", "grade", "status", "current"],
+                   default="tube", help="order of the rows (default tube)")
     s.add_argument("--config", help="scoring settings TOML")
     s.set_defaults(func=cmd_stock)
+
+    from ..judgement.matching import FIGURES
+    s = sub.add_parser("match", parents=[common],
+                       help="matched pairs, trios or quads of one type by a heater figure",
+                       description="Groups tubes of one type into sets whose heater figure "
+                       "at rated voltage lies closest: the most sets within the tolerance, "
+                       "then the least spread (optimal, not greedy). Heater matching only: "
+                       "not the plate-current or transconductance matching of amplifiers.")
+    s.add_argument("type", help="tube type, e.g. 6V6")
+    s.add_argument("--size", type=int, choices=(2, 3, 4), default=2,
+                   help="tubes per set: 2 pairs, 3 trios, 4 quads (default 2)")
+    s.add_argument("--by", choices=list(FIGURES), default="current",
+                   help="figure to match: current (hot current), warmup (to 90 %%), "
+                        "flash (flash index); default current")
+    s.add_argument("--tolerance", type=number(0),
+                   help="largest spread in a set: per cent of its mean for current and "
+                        "warmup (default 2 and 5), flash index units for flash (default 0.02)")
+    s.add_argument("--owner", help="only this owner's tubes (any case)")
+    s.add_argument("--lot", help="only this lot's tubes (a lot is kept as an owner)")
+    s.add_argument("--config", help="scoring settings TOML")
+    s.set_defaults(func=cmd_match)
 
     s = sub.add_parser("report", parents=[common], help="an HTML report of one tube")
     s.add_argument("label")

@@ -20,6 +20,8 @@ def cmd_owner(args) -> int:
             res = records.add_owner(store, args.name, args.contact, args.notes)
         elif args.action == "list":
             res = records.list_owners(store)
+        elif args.action == "show":
+            res = owner_summary(store, args.name)
         elif args.action == "rename":
             records.rename_owner(store, args.name, args.new_name)
             res = {"renamed": args.name, "to": args.new_name}
@@ -30,6 +32,8 @@ def cmd_owner(args) -> int:
             res = {"deleted": args.name}
 
     def render(r):
+        if "tubes" in r and isinstance(r, dict):
+            return render_owner_summary(r)
         if isinstance(r, list):
             fit(ui.out, [Col("owner"), Col("contact", priority=2),
                          Col("tubes", justify="right"), Col("notes", wrap=True, priority=1)],
@@ -38,6 +42,46 @@ def cmd_owner(args) -> int:
             _fields(r)
     ui.emit(args, res, render)
     return 0
+
+
+def owner_summary(store, name: str) -> dict:
+    """An owner's (or a lot's) tubes: status, grade and the day each was
+    last seen on the bench, in local time."""
+    from .. import config
+    from ..judgement import scoring
+    owner = records.require_owner(store, name)
+    last = {t["label"]: t["last_capture"] for t in records.list_tubes(store, owner["name"])}
+    tubes = [{"tube": a["tube"], "type": a["type"], "status": a["status"],
+              "grade": a["grade"], "last_seen": local_day(last.get(a["tube"])),
+              "reason": (a["reasons"] or [None])[0]}
+             for a in scoring.assess_fleet(store, config.load(None), owner=owner["name"])]
+    counts: dict = {}
+    for t in tubes:
+        counts[t["status"]] = counts.get(t["status"], 0) + 1
+    return {"owner": owner["name"], "contact": owner["contact"], "tubes": tubes,
+            "statuses": counts}
+
+
+def local_day(iso: str | None) -> str | None:
+    """A stored UTC time as the local calendar day (what a customer calls it)."""
+    if not iso:
+        return None
+    from datetime import datetime
+    return datetime.fromisoformat(iso.replace("Z", "+00:00")).astimezone().date().isoformat()
+
+
+def render_owner_summary(r: dict) -> None:
+    title = r["owner"] + (f" ({r['contact']})" if r["contact"] else "")
+    if not r["tubes"]:
+        ui.out.print(f"{title}: no tubes recorded.", markup=False)
+        return
+    fit(ui.out, [Col("tube"), Col("type", priority=1), Col("status"), Col("grade"),
+                 Col("last seen"), Col("first reason", wrap=True, priority=2)],
+        [[t["tube"], t["type"] or "", ui.status_text(t["status"]), t["grade"] or "-",
+          t["last_seen"] or "never", t["reason"] or ""] for t in r["tubes"]],
+        title=title,
+        caption=", ".join(f"{n} {s}" for s, n in sorted(r["statuses"].items()))
+        + ". Heater only: not emission, gain or noise.")
 
 
 def cmd_tube(args) -> int:
@@ -138,6 +182,9 @@ def register(sub, common) -> None:
     o.add_argument("--contact")
     o.add_argument("--notes")
     osub.add_parser("list", parents=[common], help="list owners")
+    o = osub.add_parser("show", parents=[common],
+                        help="an owner's tubes: status, grade, last seen")
+    o.add_argument("name", help="owner or lot (any case)")
     o = osub.add_parser("rename", parents=[common], help="rename an owner")
     o.add_argument("name")
     o.add_argument("new_name")

@@ -5,6 +5,7 @@ has a type from the catalogue, perhaps an owner, notes, and sections: A and B
 for a centre-tapped heater, A alone otherwise. Deleting never leaves orphans:
 a tube goes with its captures and analyses; an owner only without tubes."""
 
+import difflib
 import json
 import sqlite3
 from datetime import datetime, timezone
@@ -62,14 +63,26 @@ def add_owner(store: Store, name: str, contact: str | None = None,
 
 
 def get_owner(store: Store, name: str) -> dict | None:
+    """The owner of that name, matched without regard to case ("orla venn"
+    finds "Orla Venn"); the exact spelling first, should two differ by case."""
     rows = list(store.db["owners"].rows_where("name = ?", [name]))
+    if rows:
+        return rows[0]
+    key = name.strip().casefold()
+    rows = [r for r in store.db["owners"].rows if r["name"].casefold() == key]
     return rows[0] if rows else None
 
 
 def require_owner(store: Store, name: str) -> dict:
     o = get_owner(store, name)
     if o is None:
-        raise RecordError(f"no owner {name!r}: add them with `glowtrace owner add`")
+        known = [r["name"] for r in store.db["owners"].rows]
+        close = difflib.get_close_matches(name.casefold(), [k.casefold() for k in known], n=3,
+                                          cutoff=0.5)
+        hint = ("; did you mean " + " or ".join(
+            repr(k) for k in known if k.casefold() in close) + "?") if close else ""
+        raise RecordError(f"no owner or lot matches {name!r}{hint} "
+                          "(`glowtrace owner list` shows them; `glowtrace owner add` adds one)")
     return o
 
 
@@ -86,9 +99,10 @@ def _rows(store: Store, sql: str, args=()) -> list[dict]:
 
 
 def rename_owner(store: Store, old: str, new: str) -> None:
-    require_owner(store, old)
+    old = require_owner(store, old)["name"]
     new = _text(new, "an owner's name")
-    if get_owner(store, new):
+    other = get_owner(store, new)
+    if other and other["name"] != old:
         raise RecordError(f"owner {new!r} exists already")
     with store.transaction() as conn:
         conn.execute("PRAGMA defer_foreign_keys = ON")
@@ -97,7 +111,7 @@ def rename_owner(store: Store, old: str, new: str) -> None:
 
 
 def delete_owner(store: Store, name: str) -> None:
-    require_owner(store, name)
+    name = require_owner(store, name)["name"]
     n = store.db.execute("SELECT count(*) FROM tubes WHERE owner = ?", [name]).fetchone()[0]
     if n:
         raise RecordError(f"{name!r} still owns {n} tube(s): move them (`glowtrace tube move`) "
@@ -132,7 +146,7 @@ def add_tube(store: Store, label: str, type_name: str | None, owner: str | None 
     if type_name:
         type_name = catalogue.load().get(type_name).name
     if owner:
-        require_owner(store, owner)
+        owner = require_owner(store, owner)["name"]
     with store.transaction() as conn:
         conn.execute("INSERT INTO tubes (label, type, notes, created_at, owner) "
                      "VALUES (?,?,?,?,?)", [label, type_name, notes, _now(), owner])
@@ -161,7 +175,7 @@ def list_tubes(store: Store, owner: str | None = None, type_name: str | None = N
     where, args = [], []
     if owner:
         where.append("t.owner = ?")
-        args.append(owner)
+        args.append(require_owner(store, owner)["name"])
     if type_name:
         where.append("t.type = ?")
         args.append(catalogue.load().get(type_name).name)
@@ -200,7 +214,7 @@ def rename_tube(store: Store, old: str, new: str) -> None:
 def move_tube(store: Store, label: str, owner: str | None) -> None:
     require_tube(store, label)
     if owner:
-        require_owner(store, owner)
+        owner = require_owner(store, owner)["name"]
     with store.transaction() as conn:
         conn.execute("UPDATE tubes SET owner = ? WHERE label = ?", [owner, label])
 

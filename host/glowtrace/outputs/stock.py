@@ -35,6 +35,23 @@ def stock_rows(assessments: list[dict]) -> list[dict]:
     return rows
 
 
+def select(rows: list[dict], grade: str | None = None, status: str | None = None,
+           sort: str = "tube") -> list[dict]:
+    """Rows of that grade and status (any case), in that order; a status
+    worst first, a current by the first section's."""
+    from ..judgement.scoring import STATUS_ORDER
+    out = [r for r in rows
+           if (grade is None or (r["grade"] or "").casefold() == grade.casefold())
+           and (status is None or r["status"].casefold() == status.casefold())]
+    keys = {"tube": lambda r: r["tube"], "type": lambda r: (r["type"] or "", r["tube"]),
+            "grade": lambda r: (r["grade"] or "~", r["tube"]),
+            "status": lambda r: (STATUS_ORDER.index(r["status"])
+                                 if r["status"] in STATUS_ORDER else 99, r["tube"]),
+            "current": lambda r: (next(iter(r["rated_hot_current_a"].values()), float("inf")),
+                                  r["tube"])}
+    return sorted(out, key=keys[sort])
+
+
 def write_stock_csv(rows: list[dict], path: str | Path) -> None:
     """One line per tube section, flat columns for a spreadsheet."""
     with outfile.replacing(Path(path), "w", newline="") as f:

@@ -104,11 +104,16 @@ def _take(tester, tube: str, section: str, params: dict | None, progress,
 def run_capture(port_url: str, store: Store, tube: str, section: str,
                 params: dict | None = None, progress=None, tube_type: str | None = None,
                 notes: str | None = None, started_at: str | None = None,
-                store_wait_s: float = STORE_WAIT_S, on_busy=None) -> RawCapture:
+                store_wait_s: float = STORE_WAIT_S, on_busy=None,
+                precheck=None) -> RawCapture:
     """started_at: back-dates the capture (only the demo uses it, to lay down
-    its invented earlier visits). store_wait_s, on_busy: see store_or_keep."""
+    its invented earlier visits). store_wait_s, on_busy: see store_or_keep.
+    precheck(tester): run on the connected tester before switching on; it
+    raises to refuse the tube (the bench session's cold-resistance check)."""
     with connect(port_url) as tester:
         try:
+            if precheck:
+                precheck(tester)
             raw = _take(tester, tube, section, params, progress, tube_type, started_at)
             if raw.incomplete_reason == "interrupted by the user":
                 # the user wants out: heater off first, then store

@@ -1,0 +1,101 @@
+"""The bench session (procedures/session.py, `glowtrace session`) on the
+simulated tester: labels numbered on, the box under its lot, the brief cold
+reading that refuses a warm, open or shorted tube before switch-on, the
+prompts' choices, and every finished tube kept when the session is stopped."""
+
+import json
+
+import pytest
+
+from glowtrace.logbook.store import Store
+from glowtrace.procedures import session as ses
+
+
+def _run(cli, db, url, *extra):
+    code, out, err = cli("--db", db, "--json", "session", "--port", url, "--type", "12AX7",
+                         "--yes", *extra)
+    assert code == 0, err
+    return json.loads(out)
+
+
+def test_a_box_is_captured_under_its_lot_with_numbered_labels(cli, tmp_path):
+    db = tmp_path / "s.db"
+    rows = _run(cli, db, "glowsim://?tube=12AX7&seed=2", "--labels", "B7-###", "--start", "9",
+                "--lot", "Box 7", "--count", "2")
+    assert [r["tube"] for r in rows] == ["B7-009", "B7-010"]
+    assert all(r["outcome"] == "captured" and r["grade"] for r in rows)
+    assert "IA" in rows[0]["figures"] and rows[0]["figures"]["IA"].endswith(" A")
+    with Store(db) as s:
+        tubes = {r["label"]: r["owner"] for r in s.db["tubes"].rows}
+        assert tubes == {"B7-009": "Box 7", "B7-010": "Box 7"}
+        assert s.db["captures"].count == 2
+    # the lot is found again whatever the case
+    code, out, _ = cli("--db", db, "--json", "owner", "show", "box 7")
+    assert code == 0 and len(json.loads(out)["tubes"]) == 2
+
+
+@pytest.mark.parametrize("setting, kind", [("preheat_k=150", "warm"), ("fault=open", "open"),
+                                           ("fault=short", "short")])
+def test_a_warm_open_or_shorted_tube_is_refused_before_its_capture(cli, tmp_path, setting, kind):
+    db = tmp_path / "s.db"
+    rows = _run(cli, db, f"glowsim://?tube=12AX7&{setting}", "--count", "1")
+    assert rows[0]["outcome"] == "refused" and rows[0]["note"].startswith(kind), rows
+    if kind == "warm":
+        assert "cool about" in rows[0]["note"]
+    with Store(db) as s:
+        assert s.db["captures"].count == 0  # no "not a cold start" curve stored
+
+
+def test_the_cold_check_against_closed_form_figures():
+    """judge_cold on readings made up by hand: 12AX7 section, 6.3 V / 0.15 A
+    rated (42 ohm hot), so about 6.5 ohm cold from the catalogue."""
+    from glowtrace import catalogue
+    kind = catalogue.load().get("12AX7")
+    exp, src = 6.46, "catalogue"
+
+    def reading(ohm, amps=1.0, tripped=False):
+        return {"tripped": tripped, "volts": ohm * amps, "amps": {"A": amps}, "ohm": {"A": ohm}}
+    ses.judge_cold(reading(6.6), kind, exp, src, 22.0, 3.3)  # cold: passes
+    with pytest.raises(ses.Refused) as e:
+        ses.judge_cold(reading(6.46 * 1.6), kind, exp, src, 22.0, 3.3)
+    assert e.value.kind == "warm" and e.value.wait_s > 0
+    with pytest.raises(ses.Refused) as e:
+        ses.judge_cold(reading(1.0), kind, exp, src, 22.0, 3.3)
+    assert e.value.kind == "short"
+    with pytest.raises(ses.Refused) as e:
+        ses.judge_cold(reading(1e3, amps=0.006), kind, exp, src, 22.0, 3.3)
+    assert e.value.kind == "open"
+    # the margin is tighter once the tube's own cold figure is known
+    with pytest.raises(ses.Refused):
+        ses.judge_cold(reading(6.46 * 1.1), kind, exp, "own", 22.0, 3.3)
+
+
+def test_prompts_skip_change_type_and_stop_keep_what_was_done(tmp_path):
+    """Scripted answers: capture, skip, change the type (then refuse a bad
+    one), stop with Ctrl-C: the captured tube is in the logbook."""
+    db = tmp_path / "s.db"
+    answers = iter(["", "s", "t NOSUCH", "t 12AU7", "", KeyboardInterrupt])
+    said = []
+
+    def ask(prompt):
+        a = next(answers)
+        if a is KeyboardInterrupt:
+            raise KeyboardInterrupt
+        return a
+    s = ses.Session(db, "glowsim://?tube=12AX7", "12AX7", pattern=ses.LabelPattern("K-##"))
+    results = ses.run(s, ask, said.append)
+    assert [(r.label, r.outcome) for r in results] == [("K-01", "captured"), ("K-02", "skipped"),
+                                                       ("K-03", "captured")]
+    assert any("type now 12AU7" in line for line in said)
+    assert any("NOSUCH" in line for line in said)
+    with Store(db) as st:
+        types = {r["label"]: r["type"] for r in st.db["tubes"].rows}
+    assert types == {"K-01": "12AX7", "K-03": "12AU7"}
+
+
+def test_bad_patterns_are_refused(cli, tmp_path):
+    code, _, err = cli("--db", tmp_path / "s.db", "session", "--port", "glowsim://",
+                       "--type", "12AX7", "--labels", "B7-", "--yes")
+    assert code != 0 and "needs one run of #" in err
+    with pytest.raises(ses.PatternError):
+        ses.LabelPattern("A-##-##")
