@@ -151,6 +151,65 @@ def cmd_match(args) -> int:
     return 0
 
 
+def label_items(store, cfg, tubes_wanted, owner, type_name) -> list[dict]:
+    """What each tube's label says: label, type, day of its last test (local),
+    status, grade and up to three key figures with units."""
+    from ..judgement import scoring
+    from ..logbook import records
+    from ..outputs import stock
+    from .logbook import local_day
+    last = {t["label"]: t["last_capture"] for t in records.list_tubes(store, owner, type_name)}
+    rows = stock.stock_rows(scoring.assess_fleet(store, cfg, type_name, owner))
+    if tubes_wanted:
+        missing = [t for t in tubes_wanted if t not in {r["tube"] for r in rows}]
+        if missing:
+            from ..errors import GlowtraceError
+            raise GlowtraceError(f"no tube {missing[0]!r} in the logbook"
+                                 + (" among those chosen" if owner or type_name else ""))
+        rows = [r for r in rows if r["tube"] in tubes_wanted]
+    items = []
+    for r in rows:
+        figs = []
+        if r["rated_hot_current_a"]:
+            figs.append("I " + " ".join(f"{s} {v:.4g}" for s, v in
+                                         r["rated_hot_current_a"].items()) + " A")
+        if r["flash_index"]:
+            figs.append("flash " + " ".join(f"{s} {v:.2g}" for s, v in r["flash_index"].items()))
+        if r["current_deviation"]:
+            figs.append("vs rated " + " ".join(f"{s} {100 * v:+.1f}" for s, v in
+                                                r["current_deviation"].items()) + " %")
+        items.append({"label": r["tube"], "type": r["type"], "date": local_day(last.get(r["tube"])),
+                      "status": r["status"], "grade": r["grade"], "figures": figs})
+    return items
+
+
+def cmd_labels(args) -> int:
+    from ..errors import GlowtraceError
+    from ..outputs import labels
+    cfg = config.load(args.config)
+    path = outfile.check(args.output, (".pdf", ".svg"), ".pdf")
+    if args.grid_mm:
+        try:
+            grid = labels.parse_grid_mm(args.grid_mm)
+        except ValueError as e:
+            raise GlowtraceError(str(e)) from None
+    else:
+        grid = labels.GRIDS[args.grid or ("2x5" if args.paper == "letter" else "3x8")]
+    with Store(db_path(args), create=False) as store:
+        items = label_items(store, cfg, args.tube, args.owner or args.lot, args.type)
+    if not items:
+        raise GlowtraceError("no tubes to label: the logbook has none of those")
+    try:
+        pages = labels.write_sheet(items, path, args.paper, grid)
+    except ValueError as e:
+        raise GlowtraceError(str(e)) from None
+    ui.emit(args, {"labels": len(items), "pages": pages, "file": str(path)},
+            lambda r: ui.out.print(f"Wrote {r['labels']} label(s) on {r['pages']} sheet(s) to "
+                                   f"{r['file']}. Print at 100 % (no fit-to-page) to keep "
+                                   "the grid.", markup=False))
+    return 0
+
+
 def cmd_report(args) -> int:
     from ..outputs.report import write_report
     cfg = config.load(args.config)
@@ -205,6 +264,24 @@ def register(sub, common) -> None:
     s.add_argument("--lot", help="only this lot's tubes (a lot is kept as an owner)")
     s.add_argument("--config", help="scoring settings TOML")
     s.set_defaults(func=cmd_match)
+
+    from ..outputs.labels import GRIDS, PAPERS
+    s = sub.add_parser("labels", parents=[common],
+                       help="a printable sheet of tube labels with QR codes (PDF or SVG)")
+    s.add_argument("tube", nargs="*", help="labels of the tubes (default: all chosen)")
+    s.add_argument("-o", "--output", required=True, metavar="FILE.pdf|FILE.svg")
+    s.add_argument("--owner", help="only this owner's tubes (any case)")
+    s.add_argument("--lot", help="only this lot's tubes (any case)")
+    s.add_argument("--type", help="only this type")
+    s.add_argument("--paper", choices=list(PAPERS), default="A4", help="paper (default A4)")
+    s.add_argument("--grid", choices=list(GRIDS),
+                   help="label sheet: 3x8 (70 x 36 mm, A4; the A4 default), 3x7 (63.5 x 38.1 "
+                        "mm, A4), 2x5 (4 x 2 in, letter; the letter default)")
+    s.add_argument("--grid-mm", metavar="C,R,W,H,LEFT,TOP[,HGAP,VGAP]",
+                   help="your own sheet: columns, rows, label width and height, left and top "
+                        "margins and gaps, in mm")
+    s.add_argument("--config", help="scoring settings TOML")
+    s.set_defaults(func=cmd_labels)
 
     s = sub.add_parser("report", parents=[common], help="an HTML report of one tube")
     s.add_argument("label")
