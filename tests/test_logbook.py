@@ -212,7 +212,7 @@ def test_report_export_and_merge(capsys, tmp_path):
     html = tmp_path / "r.html"
     assert gt(capsys, "report", "R-1", "-o", str(html), "--db", str(a))[0] == 0
     page = html.read_text()
-    assert page.count("data:image/png;base64,") == 2 and "Status:" in page
+    assert page.count("data:image/png;base64,") == 2 and "class='verdict " in page
     assert "discharge the filter capacitors" in page
     exported = tmp_path / "copy.db"
     assert gt(capsys, "export", str(exported), "--db", str(a))[0] == 0

@@ -211,16 +211,36 @@ def cmd_labels(args) -> int:
 
 
 def cmd_report(args) -> int:
-    from ..outputs.report import write_report
+    from ..outputs.report import shop_settings, write_report
     cfg = config.load(args.config)
+    shop = shop_settings(args.shop)  # a bad settings file stops before the work
+    if args.visit:
+        from datetime import date
+        try:
+            date.fromisoformat(args.visit)
+        except ValueError:
+            from ..errors import GlowtraceError
+            raise GlowtraceError(f"--visit {args.visit!r}: a day as YYYY-MM-DD") from None
     # a name made from the label stays a plain file name here, whatever the
     # label holds ("KS/0117", "../x")
     path = outfile.check(args.output or f"{outfile.safe_name(args.label)}-heater-report.html",
                          (".html", ".htm"), ".html")
     with Store(db_path(args), create=False) as store:
-        result = write_report(store, args.label, cfg, path)
-    ui.emit(args, {"report": str(path), "status": result["status"], "grade": result["grade"]},
-            lambda r: ui.out.print(f"Wrote {r['report']} (status {r['status']}).", markup=False))
+        result = write_report(store, args.label, cfg, path, shop, args.visit, args.paper)
+    if not shop and not args.json:
+        ui.err.print("No shop details on the page: put name, address and contact under [shop] "
+                     "in ~/.config/glowtrace/shop.toml (or --shop FILE).", markup=False)
+    out = {"report": str(path), **result}
+    if result["kind"] == "tube":  # one tube: its status and grade at the top level as before
+        out.update(status=result["tubes"][0]["status"], grade=result["tubes"][0]["grade"])
+
+    def render(r):
+        ui.out.print(f"Wrote {r['report']}: {len(r['tubes'])} tube(s)"
+                     + (f", visit {r['visit']}" if r["visit"] else "") + ".", markup=False)
+        for t in r["tubes"]:
+            ui.out.print(f"  {t['tube']}: {t['verdict']}. {t['advice']}", markup=False,
+                         highlight=False)
+    ui.emit(args, out, render)
     return 0
 
 
@@ -283,8 +303,18 @@ def register(sub, common) -> None:
     s.add_argument("--config", help="scoring settings TOML")
     s.set_defaults(func=cmd_labels)
 
-    s = sub.add_parser("report", parents=[common], help="an HTML report of one tube")
-    s.add_argument("label")
+    s = sub.add_parser("report", parents=[common],
+                       help="an HTML report for the customer: one tube, or an owner's visit",
+                       description="A page to hand to the customer: the shop (from [shop] in "
+                       "~/.config/glowtrace/shop.toml or --shop), the customer and the visit, "
+                       "per tube a verdict in plain words, then figures and curves, the "
+                       "statistics in an appendix. Prints on A4 or Letter.")
+    s.add_argument("label", help="a tube's label, or an owner or lot (any case)")
     s.add_argument("-o", "--output", metavar="FILE.html")
+    s.add_argument("--visit", metavar="YYYY-MM-DD",
+                   help="for an owner: the tubes tested that day (default: the latest visit)")
+    s.add_argument("--shop", metavar="FILE", help="shop settings TOML with a [shop] table")
+    s.add_argument("--paper", choices=["A4", "letter"], default="A4",
+                   help="paper for printing (default A4)")
     s.add_argument("--config", help="scoring settings TOML")
     s.set_defaults(func=cmd_report)
