@@ -167,7 +167,7 @@ def test_install_runs_the_exact_mpremote_commands(monkeypatch):
 def test_install_failures_are_explained(monkeypatch, run, hello, msg):
     monkeypatch.setattr(firmware_install, "_leave_firmware", lambda port: False)
     with pytest.raises(GlowtraceError, match=msg):
-        firmware_install.install("/dev/ttyACM0", run=run, settle_s=0,
+        firmware_install.install("/dev/ttyACM0", run=run, settle_s=0, wait_s=0.3,
                                  handshake=hello or _hello(firmware_install.firmware_version()),
                                  progress=lambda m: None)
 

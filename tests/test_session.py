@@ -82,7 +82,7 @@ def test_prompts_skip_change_type_and_stop_keep_what_was_done(tmp_path):
         if a is KeyboardInterrupt:
             raise KeyboardInterrupt
         return a
-    s = ses.Session(db, "glowsim://?tube=12AX7", "12AX7", pattern=ses.LabelPattern("K-##"))
+    s = ses.Session(db, ["glowsim://?tube=12AX7"], "12AX7", pattern=ses.LabelPattern("K-##"))
     results = ses.run(s, ask, said.append)
     assert [(r.label, r.outcome) for r in results] == [("K-01", "captured"), ("K-02", "skipped"),
                                                        ("K-03", "captured")]
@@ -99,3 +99,42 @@ def test_bad_patterns_are_refused(cli, tmp_path):
     assert code != 0 and "needs one run of #" in err
     with pytest.raises(ses.PatternError):
         ses.LabelPattern("A-##-##")
+
+
+def test_several_testers_side_by_side_share_the_box_and_one_logbook(cli, tmp_path):
+    """Three simulated testers, six tubes: each label once, every capture in
+    the logbook (written by one writer), every tester used."""
+    db = tmp_path / "s.db"
+    ports = [f"glowsim://?tube=12BA6&serial=T{n}" for n in (1, 2, 3)]
+    code, out, err = cli("--db", db, "--json", "session", *[a for p in ports for a in
+                                                              ("--port", p)],
+                         "--type", "12BA6", "--labels", "M-###", "--count", "6", "--yes")
+    assert code == 0, err
+    rows = json.loads(out)
+    assert [r["tube"] for r in rows] == [f"M-{n:03d}" for n in range(1, 7)]
+    assert all(r["outcome"] == "captured" for r in rows)
+    assert "locked" not in err
+    with Store(db) as s:
+        caps = list(s.db.execute("SELECT tube, hello_hash FROM captures"))
+        assert sorted(t for t, _ in caps) == [f"M-{n:03d}" for n in range(1, 7)]
+        boards = {r[0] for r in s.db.execute(
+            "SELECT json_extract(hello, '$.board') FROM tester_records")}
+    assert boards == {"sim-T1", "sim-T2", "sim-T3"}
+
+
+def test_a_failing_tester_does_not_stop_the_others(tmp_path):
+    db = tmp_path / "s.db"
+    said = []
+    s = ses.Session(db, ["glowsim://?tube=12BA6&serial=G1",
+                         "glowsim://?tube=12BA6&serial=G2&fault=open"], "12BA6",
+                    pattern=ses.LabelPattern("G-#"), count=4)
+    results = ses.run(s, lambda p: "s" if "Retest " in p else "", said.append)
+    outcomes = sorted((r.label, r.outcome) for r in results)
+    assert len(outcomes) == 4 and {o for _, o in outcomes} <= {"captured", "refused"}
+    assert all(line.startswith(("[1] ", "[2] ")) for line in said)
+    # the open tester refuses every tube it is given; the good one captures
+    # every one it is given, and the box is shared out between them
+    by = {r.label: next(line[:3] for line in said if line[4:].startswith(r.label + ":"))
+          for r in results}
+    assert {by[r.label] for r in results if r.outcome == "refused"} == {"[2]"}
+    assert {by[r.label] for r in results if r.outcome == "captured"} == {"[1]"}

@@ -15,15 +15,17 @@ def cmd_session(args) -> int:
     if args.scan and args.labels:
         raise ses.PatternError("give --labels or --scan, not both")
     pattern = None if args.scan else ses.LabelPattern(args.labels or "T-###", args.start)
-    port = args.port or find_tester()
-    s = ses.Session(db_path(args), port, kind.name, args.section, args.range, args.lot,
+    ports = args.port or [find_tester()]
+    if len(set(ports)) != len(ports):
+        raise ses.PatternError("a tester is named twice in --port")
+    s = ses.Session(db_path(args), ports, kind.name, args.section, args.range, args.lot,
                     pattern, args.count, args.max_s, args.room_c)
 
     def ask(prompt: str) -> str:
         if args.yes:  # scripted: no prompt to insert (the simulated tester, a jig)
             if "Label of" in prompt:
                 raise EOFError
-            return "s" if prompt.startswith("Retest") else ""  # a refused tube is skipped
+            return "s" if "Retest " in prompt else ""  # a refused tube is skipped
         ui.err.print(prompt, end="", markup=False)
         line = sys.stdin.readline()
         if not line:
@@ -33,10 +35,10 @@ def cmd_session(args) -> int:
     def say(text: str) -> None:
         ui.err.print(text, markup=False, highlight=False)
 
-    from .tester import _progress_bar
-    bar, update = _progress_bar(args.max_s)
+    bar, progress_for = _progress_lines(ports, args.max_s)
     with bar:
-        results = ses.run(s, ask, say, update)
+        results = ses.run(s, ask, say, progress_for)
+    results = sorted(results, key=lambda r: r.label)  # the box's order, not the finish's
     rows = [{"tube": r.label, "outcome": r.outcome, "status": r.status, "grade": r.grade,
              "figures": r.figures, "note": r.note} for r in results]
 
@@ -56,6 +58,28 @@ def cmd_session(args) -> int:
     return 0
 
 
+def _progress_lines(ports: list[str], max_s: float):
+    """One progress line per tester (on a terminal)."""
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+    bar = Progress(TextColumn("[bold]{task.description}"), BarColumn(),
+                   TextColumn("{task.fields[status]}"), TimeElapsedColumn(),
+                   console=ui.err, transient=True, disable=not ui.err.is_terminal)
+    tasks = {str(n): bar.add_task(f"tester {n}" if len(ports) > 1 else "capturing",
+                                  total=max_s, status="")
+             for n in range(1, len(ports) + 1)}
+
+    def progress_for(who: str):
+        task = tasks[who]
+
+        def update(raw):
+            b = raw.blocks[-1]
+            t_s = (b.t_start_us + b.interval_us * b.n_sets) / 1e6
+            bar.update(task, completed=min(t_s, max_s),
+                       status=f"{raw.tube}: {t_s:6.2f} s heater time, {raw.n_sets} sets")
+        return update
+    return bar, progress_for
+
+
 def register(sub, common) -> None:
     s = sub.add_parser("session", parents=[common],
                        help="capture a box of tubes one after another (labels numbered on)",
@@ -63,8 +87,9 @@ def register(sub, common) -> None:
                        "labels once, then insert each tube when asked. A brief cold reading "
                        "before each capture refuses a tube that is still warm, open or "
                        "shorted. Ctrl-C or q ends the session; every finished tube is kept.")
-    s.add_argument("--port", help="serial device or glowsim:// URL (default: the one tester "
-                                  "found on USB)")
+    s.add_argument("--port", action="append",
+                   help="serial device or glowsim:// URL; give it again for each tester run "
+                        "side by side (default: the one tester found on USB)")
     s.add_argument("--type", required=True, help="tube type of the box, e.g. 6V6")
     s.add_argument("--section", choices=["A", "B", "AB"],
                    help="sections to switch on (default: every section of the type)")

@@ -78,7 +78,7 @@ class UserInterrupt(KeyboardInterrupt):
 
 
 def _take(tester, tube: str, section: str, params: dict | None, progress,
-          tube_type: str | None, started_at: str | None) -> RawCapture:
+          tube_type: str | None, started_at: str | None, should_stop=None) -> RawCapture:
     """The capture on a connected tester, checked for the type first; a
     capture the user interrupted comes back with its reason."""
     params = dict(params or {})
@@ -91,7 +91,7 @@ def _take(tester, tube: str, section: str, params: dict | None, progress,
     if params.get("range") is None:
         params["range"] = "low"
     try:
-        raw = tester.capture(tube, section, params, progress)
+        raw = tester.capture(tube, section, params, progress, should_stop)
     except CaptureInterrupted as e:
         raw = e.raw
         raw.incomplete_reason = e.reason
@@ -130,13 +130,18 @@ def run_capture(port_url: str, store: Store, tube: str, section: str,
 
 
 def capture_unstored(port_url: str, tube: str, section: str, params: dict | None = None,
-                     started_at: str | None = None) -> RawCapture:
+                     started_at: str | None = None, tube_type: str | None = None,
+                     progress=None, precheck=None, should_stop=None) -> RawCapture:
     """A capture taken and the tester left off, for a caller that stores it
-    itself (the demo, which runs its simulated testers side by side and
-    stores in order)."""
+    itself (the demo and the bench session with several testers, which run
+    testers side by side and store through one writer). precheck: as in
+    run_capture."""
     with connect(port_url) as tester:
         try:
-            return _take(tester, tube, section, params, None, None, started_at)
+            if precheck:
+                precheck(tester)
+            return _take(tester, tube, section, params, progress, tube_type, started_at,
+                         should_stop)
         finally:
             tester.abort()
 

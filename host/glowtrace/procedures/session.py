@@ -158,7 +158,7 @@ class TubeResult:
 class Session:
     """What is set once for the box."""
     db_path: object
-    port: str
+    ports: list                    # one tester, or several side by side
     type_name: str
     section: str | None = None     # None: every section of the type
     range_name: str | None = None  # None: from the type
@@ -167,6 +167,65 @@ class Session:
     count: int | None = None       # stop after this many tubes
     max_s: float = 60.0
     room_c: float = 22.0
+
+
+class Writer:
+    """The session's one connection to the logbook: every read and write of
+    the session goes through call(fn, *args), which runs fn(store, *args) in
+    the writer's own thread when testers run side by side (so no two
+    threads ever write at once), or at once otherwise."""
+
+    def __init__(self, db_path, threaded: bool):
+        import queue
+        import threading
+        from ..logbook.store import Store
+        self.threaded = threaded
+        self._open = lambda: Store(db_path)
+        if not threaded:
+            self.store = self._open()
+            self.store.check_writable()
+            return
+        self._jobs: "queue.Queue" = queue.Queue()
+        ready = queue.Queue()
+        self._thread = threading.Thread(target=self._serve, args=(ready,), daemon=True)
+        self._thread.start()
+        err = ready.get()
+        if err:
+            raise err
+
+    def _serve(self, ready):
+        try:
+            self.store = self._open()
+            self.store.check_writable()
+        except Exception as e:  # noqa: BLE001 - handed to the caller
+            ready.put(e)
+            return
+        ready.put(None)
+        while True:
+            job = self._jobs.get()
+            if job is None:
+                break
+            fn, args, fut = job
+            try:
+                fut.set_result(fn(self.store, *args))
+            except BaseException as e:  # noqa: BLE001 - raised again in the caller
+                fut.set_exception(e)
+        self.store.close()
+
+    def call(self, fn, *args):
+        if not self.threaded:
+            return fn(self.store, *args)
+        from concurrent.futures import Future
+        fut: Future = Future()
+        self._jobs.put((fn, args, fut))
+        return fut.result()
+
+    def close(self):
+        if self.threaded:
+            self._jobs.put(None)
+            self._thread.join(30)
+        else:
+            self.store.close()
 
 
 def _one_line(r: TubeResult) -> str:
@@ -189,102 +248,215 @@ def _figures(raw) -> dict:
     return out
 
 
-def run(session: Session, ask, say, progress=None) -> list[TubeResult]:
-    """The session's loop. ask(prompt) -> the user's answer (raises
-    EOFError or KeyboardInterrupt to stop); say(text) shows a line."""
-    from .. import config
-    from ..judgement import scoring
-    from ..logbook import records
-    from ..logbook.store import Store
-    from ..tester.calibration import nominal_scale  # noqa: F401 (import checked early)
-    from .capture import UserInterrupt, run_capture
-    kind = catalogue.load().get(session.type_name)
-    section = session.section or sections_for(kind)
-    cfg = config.load(None)
-    results: list[TubeResult] = []
-    with Store(session.db_path) as store:
-        store.check_writable()
-        if session.lot and not records.get_owner(store, session.lot):
-            records.add_owner(store, session.lot, notes="lot (bench session)")
-        lot = records.require_owner(store, session.lot)["name"] if session.lot else None
-        label = None
-        retry = False
-        while session.count is None or len(results) < session.count:
-            try:
-                if not retry:
-                    if session.pattern:
-                        label = session.pattern.next()
-                    else:
-                        label = ask("Label of the next tube (scan or type; empty to stop): "
-                                    ).strip()
-                        if not label:
-                            break
-                retry = False
-                answer = ask(f"Insert {label} ({kind.name}, section {section}) and press Enter; "
-                             "s skip, t TYPE change type, q stop: ").strip()
-            except (EOFError, KeyboardInterrupt):
-                break
-            if answer.lower() == "q":
-                break
-            if answer.lower() == "s":
-                results.append(TubeResult(label, "skipped"))
-                say(_one_line(results[-1]))
-                continue
-            if answer.lower().startswith("t "):
-                try:
-                    kind = catalogue.load().get(answer[2:].strip())
-                except GlowtraceError as e:
-                    say(str(e))
-                    retry = True
-                    continue
-                section = session.section or sections_for(kind)
-                say(f"type now {kind.name}, section {section}")
-                retry = True
-                continue
-            tube = records.get_tube(store, label)
-            if tube is None:
-                records.add_tube(store, label, kind.name, owner=lot)
-            elif tube["type"] and tube["type"] != kind.name:
-                say(f"{label} is recorded as a {tube['type']}, not a {kind.name}: skipped")
-                results.append(TubeResult(label, "skipped", note="type differs from the record"))
-                continue
-            expected, source = expected_cold_ohm(store, kind, label)
+class TypeDiffers(GlowtraceError):
+    pass
 
-            def precheck(tester):
-                from ..tester.sockets import range_for
-                rng = session.range_name or range_for(kind, tester.hello["frontend"])
-                fe = tester.hello["frontend"]
-                reading = cold_reading(tester, section, rng)
-                judge_cold(reading, kind, expected, source, session.room_c,
-                           fe["adc"]["vref_v"] * fe["current_ranges"][rng]["amps_per_volt"])
-            params = {"range": session.range_name, "max_s": session.max_s}
+
+def _prepare(store, label: str, kind, lot: str | None) -> tuple[float, str]:
+    """The tube's record (made if new, under the lot) and its expected cold
+    resistance; in the writer."""
+    from ..logbook import records
+    tube = records.get_tube(store, label)
+    if tube is None:
+        records.add_tube(store, label, kind.name, owner=lot)
+    elif tube["type"] and tube["type"] != kind.name:
+        raise TypeDiffers(f"{label} is recorded as a {tube['type']}, not a {kind.name}")
+    return expected_cold_ohm(store, kind, label)
+
+
+def _store_and_judge(store, raw, type_name: str, cfg: dict) -> TubeResult:
+    """Store the capture (nothing lost: a logbook that stays busy leaves it
+    in a file for `glowtrace recover`), analyse it, and judge the tube."""
+    from ..judgement import scoring
+    from .capture import CaptureNotStored, analyze_after_storing, store_or_keep, STORE_WAIT_S
+    try:
+        store_or_keep(store, raw, type_name, None, STORE_WAIT_S)
+    except CaptureNotStored as e:
+        return TubeResult(raw.tube, "not stored", note=str(e))
+    raw.analysis = analyze_after_storing(store, raw)
+    if not raw.complete:
+        return TubeResult(raw.tube, "incomplete", note=raw.incomplete_reason or "")
+    a = scoring.history(store, raw.tube, cfg)
+    return TubeResult(raw.tube, "captured", a["status"], a["grade"], _figures(raw))
+
+
+class _Bench:
+    """What the testers of one session share: the type, the labels, the
+    results, the prompt (one at a time on the terminal) and the stop."""
+
+    def __init__(self, session: Session, ask, say, writer: Writer, kind, lot):
+        import threading
+        self.s = session
+        self.ask_raw, self.say = ask, say
+        self.writer = writer
+        self.kind = kind
+        self.section = session.section or sections_for(kind)
+        self.lot = lot
+        self.results: list[TubeResult] = []
+        self.started = 0
+        self.lock = threading.Lock()
+        self.ask_lock = threading.Lock()
+        self.stop = threading.Event()
+        self.asking: set = set()
+
+    def ask(self, who: str, prompt: str) -> str:
+        with self.ask_lock:
+            if self.stop.is_set():
+                raise EOFError
+            self.asking.add(who)
             try:
-                raw = run_capture(session.port, store, label, section, params, progress,
-                                  tube_type=kind.name, precheck=precheck)
-            except Refused as e:
-                say(f"{label}: refused before switch-on: {e}")
-                try:
-                    again = ask(f"Retest {label}? Enter when ready, s to skip it, q to stop: "
-                                ).strip().lower()
-                except (EOFError, KeyboardInterrupt):
-                    again = "q"
-                if again in ("s", "q"):
-                    results.append(TubeResult(label, "refused", note=f"{e.kind}: {e}"))
-                    say(_one_line(results[-1]))
-                    if again == "q":
-                        break
-                else:
-                    retry = True  # the same tube, same label, once it has cooled
-                continue
-            except UserInterrupt as e:
-                results.append(TubeResult(label, "incomplete", note="interrupted; stored"))
-                say(_one_line(results[-1]) + (" (heater off)" if e.off_confirmed else ""))
-                break
-            if not raw.complete:
-                results.append(TubeResult(label, "incomplete", note=raw.incomplete_reason))
+                return self.ask_raw(prompt)
+            finally:
+                self.asking.discard(who)
+
+    def record(self, r: TubeResult, prefix: str) -> None:
+        with self.lock:
+            self.results.append(r)
+        self.say(prefix + _one_line(r))
+
+    def next_label(self, who: str, prefix: str) -> str | None:
+        with self.lock:
+            if self.s.count is not None and self.started >= self.s.count:
+                return None
+            self.started += 1
+            if self.s.pattern:
+                return self.s.pattern.next()
+        label = self.ask(who, prefix + "Label of the next tube (scan or type; empty to stop): "
+                         ).strip()
+        return label or None
+
+
+def _tester_loop(bench: _Bench, port: str, who: str, prefix: str, progress) -> None:
+    """One tester's tubes, one after another, until the labels run out, the
+    user stops, or the tester fails."""
+    from .. import config
+    from .capture import capture_unstored
+    cfg = config.load(None)
+    label = None
+    retry = False
+    while not bench.stop.is_set():
+        try:
+            if not retry:
+                label = bench.next_label(who, prefix)
+                if label is None:
+                    return
+            retry = False
+            kind, section = bench.kind, bench.section
+            answer = bench.ask(who, f"{prefix}Insert {label} ({kind.name}, section {section}) "
+                               "and press Enter; s skip, t TYPE change type, q stop: ").strip()
+        except (EOFError, KeyboardInterrupt):
+            bench.stop.set()
+            return
+        if answer.lower() == "q":
+            bench.stop.set()
+            return
+        if answer.lower() == "s":
+            bench.record(TubeResult(label, "skipped"), prefix)
+            continue
+        if answer.lower().startswith("t "):
+            try:
+                new = catalogue.load().get(answer[2:].strip())
+            except GlowtraceError as e:
+                bench.say(prefix + str(e))
             else:
-                a = scoring.history(store, label, cfg)
-                results.append(TubeResult(label, "captured", a["status"], a["grade"],
-                                          _figures(raw)))
-            say(_one_line(results[-1]))
-    return results
+                with bench.lock:
+                    bench.kind = new
+                    bench.section = bench.s.section or sections_for(new)
+                bench.say(f"{prefix}type now {new.name}, section {bench.section}")
+            retry = True
+            continue
+        try:
+            expected, source = bench.writer.call(_prepare, label, kind, bench.lot)
+        except TypeDiffers as e:
+            bench.record(TubeResult(label, "skipped", note=str(e)), prefix)
+            continue
+
+        def precheck(tester, kind=kind, section=section, expected=expected, source=source):
+            from ..tester.sockets import range_for
+            fe = tester.hello["frontend"]
+            rng = bench.s.range_name or range_for(kind, fe)
+            reading = cold_reading(tester, section, rng)
+            judge_cold(reading, kind, expected, source, bench.s.room_c,
+                       fe["adc"]["vref_v"] * fe["current_ranges"][rng]["amps_per_volt"])
+        params = {"range": bench.s.range_name, "max_s": bench.s.max_s}
+        try:
+            raw = capture_unstored(port, label, section, params, tube_type=kind.name,
+                                   progress=progress, precheck=precheck,
+                                   should_stop=bench.stop.is_set)
+        except Refused as e:
+            bench.say(f"{prefix}{label}: refused before switch-on: {e}")
+            try:
+                again = bench.ask(who, f"{prefix}Retest {label}? Enter when ready, s to skip "
+                                  "it, q to stop: ").strip().lower()
+            except (EOFError, KeyboardInterrupt):
+                again = "q"
+            if again in ("s", "q"):
+                bench.record(TubeResult(label, "refused", note=f"{e.kind}: {e}"), prefix)
+                if again == "q":
+                    bench.stop.set()
+                    return
+            else:
+                retry = True  # the same tube, same label, once it has cooled
+            continue
+        except GlowtraceError as e:  # the tester itself: gone, not answering
+            bench.record(TubeResult(label, "error", note=str(e)), prefix)
+            bench.say(f"{prefix}this tester stops; the others go on")
+            return
+        result = bench.writer.call(_store_and_judge, raw, kind.name, cfg)
+        bench.record(result, prefix)
+        if raw.incomplete_reason == "interrupted by the user":
+            bench.stop.set()
+            return
+
+
+def run(session: Session, ask, say, progress_for=None) -> list[TubeResult]:
+    """The session: one loop per tester, side by side when there are several.
+    ask(prompt) -> the user's answer (EOFError or KeyboardInterrupt stop);
+    say(text) shows a line; progress_for(tester name) -> a capture progress
+    callback or None. Every finished tube is stored when it returns."""
+    import threading
+    import time
+    from ..logbook import records
+    if not session.ports:
+        raise GlowtraceError("no tester to run the session on")
+    kind = catalogue.load().get(session.type_name)
+    several = len(session.ports) > 1
+    writer = Writer(session.db_path, threaded=several)
+    try:
+        lot = None
+        if session.lot:
+            def make_lot(store):
+                if not records.get_owner(store, session.lot):
+                    records.add_owner(store, session.lot, notes="lot (bench session)")
+                return records.require_owner(store, session.lot)["name"]
+            lot = writer.call(make_lot)
+        bench = _Bench(session, ask, say, writer, kind, lot)
+        names = [str(n) for n in range(1, len(session.ports) + 1)]
+
+        def prog(who):
+            return progress_for(who) if progress_for else None
+        if not several:
+            try:
+                _tester_loop(bench, session.ports[0], "1", "", prog("1"))
+            except KeyboardInterrupt:
+                bench.stop.set()
+            return bench.results
+        threads = [threading.Thread(target=_tester_loop, daemon=True,
+                                    args=(bench, port, who, f"[{who}] ", prog(who)))
+                   for port, who in zip(session.ports, names)]
+        for t in threads:
+            t.start()
+        try:
+            while any(t.is_alive() for t in threads):
+                time.sleep(0.1)
+        except KeyboardInterrupt:
+            bench.stop.set()
+            # the testers that are capturing stop and store what they have;
+            # one waiting at the prompt is not waited for
+            deadline = time.monotonic() + 60
+            while time.monotonic() < deadline and any(
+                    t.is_alive() and who not in bench.asking for t, who in zip(threads, names)):
+                time.sleep(0.1)
+        return bench.results
+    finally:
+        writer.close()

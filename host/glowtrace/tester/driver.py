@@ -138,9 +138,11 @@ class Tester:
             return False
 
     def capture(self, tube: str | None, section: str, params: dict,
-                progress=None) -> RawCapture:
+                progress=None, should_stop=None) -> RawCapture:
         """Run one capture. Returns the whole capture; raises
-        CaptureInterrupted with the partial one when it cannot be whole."""
+        CaptureInterrupted with the partial one when it cannot be whole.
+        should_stop(): polled while capturing; True stops it as Ctrl-C does
+        (a capture in a thread of its own, which Ctrl-C never reaches)."""
         if self.hello is None:
             self.identify()
         raw = RawCapture(tube=tube, section=section, port=self.port_name, hello=self.hello)
@@ -161,6 +163,8 @@ class Tester:
                 if now - last_hb >= HEARTBEAT_S:
                     self.link.send(protocol.HEARTBEAT)
                     last_hb = now
+                if should_stop is not None and should_stop():
+                    raise KeyboardInterrupt
                 f = self.link.receive(0.1)
                 if f is None:
                     if time.monotonic() - last_rx > SILENT_DEVICE_S:

@@ -106,6 +106,7 @@ def install(port: str, run=subprocess.run, settle_s: float = 3.0, handshake=None
     deadline = time.monotonic() + wait_s
     hello = (handshake or _handshake)(port)
     while hello is None and time.monotonic() < deadline:
+        time.sleep(0.25)  # a port that is gone while the board re-enumerates fails at once
         hello = (handshake or _handshake)(port)
     if hello is None:
         raise GlowtraceError("the board did not answer after the install: see what it says "
