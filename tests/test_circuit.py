@@ -10,9 +10,24 @@ import pytest
 from spice import SCHEMATICS, needs_ngspice, run
 
 FE = json.loads((SCHEMATICS / "frontend.json").read_text())
-PARTS = {r["reference"]: r for r in csv.DictReader((SCHEMATICS / "parts.csv").open())}
+VARIANTS = {"30V": FE, "55V": json.loads((SCHEMATICS / "frontend-55v.json").read_text())}
+ROWS = list(csv.DictReader((SCHEMATICS / "parts.csv").open()))
 VREF = FE["adc"]["vref_v"]
 pytestmark = needs_ngspice
+
+
+def parts(variant: str) -> dict:
+    """The parts of a variant: the shared rows and its own."""
+    return {r["reference"]: r for r in ROWS if r["variant"] in ("all", variant)}
+
+
+PARTS = parts("30V")
+
+
+def voltage_ch(fe: dict) -> str:
+    """The VOLTAGE_CH instance parameters of a variant's divider and filter."""
+    d = fe["voltage_divider"]
+    return f"rtop={d['r_top_ohm']} rbot={d['r_bottom_ohm']} cf={fe['voltage_divider_filter_pf']}p"
 
 
 @pytest.mark.parametrize("rng,gpio", [("low", 0.0), ("high", 3.3)])
@@ -40,24 +55,28 @@ quit
     assert vals["v1"] * apv == pytest.approx(i1, rel=0.005)  # no offset
 
 
-def test_voltage_channel_transfer(tmp_path):
-    vals = run("""* voltage channel transfer
+@pytest.mark.parametrize("variant", list(VARIANTS))
+def test_voltage_channel_transfer(tmp_path, variant):
+    fe = VARIANTS[variant]
+    top = fe["limits"]["supply_v_max"]
+    lo, hi = 0.1 * top, 0.9 * top
+    vals = run(f"""* voltage channel transfer
 .include @LIB@
 Vn node 0 DC 0
 Vdd vdd3 0 DC 3.3
-X1 node adc vdd3 VOLTAGE_CH
-.dc Vn 0 30 0.5
+X1 node adc vdd3 VOLTAGE_CH {voltage_ch(fe)}
+.dc Vn 0 {top} 0.5
 .control
 run
-meas dc v1 FIND v(adc) AT=3
-meas dc v2 FIND v(adc) AT=27
+meas dc v1 FIND v(adc) AT={lo}
+meas dc v2 FIND v(adc) AT={hi}
 quit
 .endc
 .end
 """, tmp_path)
-    vpv = (27 - 3) / (vals["v2"] - vals["v1"])
-    assert vpv == pytest.approx(FE["voltage_divider"]["volts_per_volt"], rel=0.002)
-    assert FE["limits"]["supply_v_max"] / vpv < VREF  # full supply range fits
+    vpv = (hi - lo) / (vals["v2"] - vals["v1"])
+    assert vpv == pytest.approx(fe["voltage_divider"]["volts_per_volt"], rel=0.002)
+    assert top / vpv < VREF  # full supply range fits
 
 
 def _corner(tmp_path, subckt_lines: str) -> float:
@@ -80,10 +99,13 @@ quit
     return vals["fc"]
 
 
-def test_filter_corners_match_the_data_file_and_the_schedule(tmp_path):
+@pytest.mark.parametrize("variant", list(VARIANTS))
+def test_filter_corners_match_the_data_file_and_the_schedule(tmp_path, variant):
     from glowfw_schedule import dense_interval_us
+    fe = VARIANTS[variant]
     fc_i = _corner(tmp_path, "Vac sp 0 DC 0.01 AC 0.001\nX1 sp 0 rng adc vdd3 CURRENT_CH")
-    fc_v = _corner(tmp_path, "Vac node 0 DC 6 AC 1\nX1 node adc vdd3 VOLTAGE_CH")
+    fc_v = _corner(tmp_path, "Vac node 0 DC 6 AC 1\nX1 node adc vdd3 VOLTAGE_CH "
+                   + voltage_ch(fe))
     want = FE["anti_alias"]["corner_hz"]
     for fc in (fc_i, fc_v):
         assert fc == pytest.approx(want, rel=0.1)
@@ -122,58 +144,92 @@ quit
 """
 
 
-def test_switch_turns_on_fast_and_stays_cool_at_the_largest_inrush(tmp_path):
-    i_max = FE["limits"]["max_inrush_a"]
+@pytest.mark.parametrize("variant", list(VARIANTS))
+def test_switch_turns_on_fast_and_stays_cool_at_the_largest_inrush(tmp_path, variant):
+    fe, p = VARIANTS[variant], parts(variant)
+    i_max = fe["limits"]["max_inrush_a"]
     vals = run(_switch_deck(6.3 / i_max), tmp_path)
     t_on_us = (vals["t90"] - vals["t10"]) * 1e6
-    assert t_on_us < FE["switch"]["turn_on_max_us"]
+    assert t_on_us < fe["switch"]["turn_on_max_us"]
     rds = vals["vds"] / vals["idmax"]
-    assert rds == pytest.approx(FE["switch"]["rds_on_ohm"], rel=0.35)
+    assert rds == pytest.approx(fe["switch"]["rds_on_ohm"], rel=0.35)
     # conduction at the peak, held for a whole inrush (pessimistic), against
     # the part's rating with its derating; switching adds a few millijoules
-    conduction = vals["idmax"] ** 2 * rds
-    q = PARTS["Q1"]
+    conduction = vals["idmax"] ** 2 * fe["switch"]["rds_on_ohm"]
+    q = p["Q1"]
     assert conduction <= float(q["pulse_w"]) * float(q["derating"])
     assert vals["eon"] < 5e-3
     # the shunt at the same current
-    rs = PARTS["RS1"]
-    assert i_max ** 2 * FE["current_ranges"]["high"]["shunt_ohm"] <= (
+    rs = p["RS1"]
+    assert i_max ** 2 * fe["current_ranges"]["high"]["shunt_ohm"] <= (
         float(rs["pulse_w"]) * float(rs["derating"]))
-    assert FE["limits"]["max_hot_a"] ** 2 * FE["current_ranges"]["high"]["shunt_ohm"] <= (
+    assert fe["limits"]["max_hot_a"] ** 2 * fe["current_ranges"]["high"]["shunt_ohm"] <= (
         float(rs["power_w"]) * float(rs["derating"]))
 
 
-def test_divider_power_at_the_highest_supply():
-    vmax = FE["limits"]["supply_v_max"]
-    top, bot = (FE["voltage_divider"][k] for k in ("r_top_ohm", "r_bottom_ohm"))
+@pytest.mark.parametrize("variant", list(VARIANTS))
+def test_divider_power_at_the_highest_supply(variant):
+    fe, p = VARIANTS[variant], parts(variant)
+    vmax = fe["protection"]["tvs_clamp_max_v"]  # a transient the TVS clamps, held (pessimistic)
+    top, bot = (fe["voltage_divider"][k] for k in ("r_top_ohm", "r_bottom_ohm"))
     i = vmax / (top + bot)
-    assert i * i * top <= float(PARTS["R9"]["power_w"]) * float(PARTS["R9"]["derating"])
-    assert i * i * bot <= float(PARTS["R10"]["power_w"]) * float(PARTS["R10"]["derating"])
+    assert i * i * top <= float(p["R9"]["power_w"]) * float(p["R9"]["derating"])
+    assert i * i * bot <= float(p["R10"]["power_w"]) * float(p["R10"]["derating"])
+    assert f"{top / 1000:g} kohm" in p["R9"]["value"] and f"{bot / 1000:g} kohm" in p["R10"]["value"]
 
 
-def test_converter_inputs_stay_within_rating_at_overload(tmp_path):
-    limit = FE["adc"]["input_max_v"]
-    vals = run(f"""* overload: twice the largest inrush on the low range, 40 V supply
+@pytest.mark.parametrize("variant", list(VARIANTS))
+def test_converter_inputs_stay_within_rating_at_overload(tmp_path, variant):
+    """Twice the largest inrush on the low range, and the supply rail at the
+    TVS's largest clamping voltage: the converter's pins stay inside their
+    rating, and the clamp diodes' current inside theirs."""
+    fe = VARIANTS[variant]
+    limit = fe["adc"]["input_max_v"]
+    clamp = fe["protection"]["tvs_clamp_max_v"]
+    vals = run(f"""* overload
 .include @LIB@
 Vdd vdd3 0 DC 3.3
 Vrng rng 0 DC 0
-Iload 0 sp PULSE(0 {2 * FE['limits']['max_inrush_a']} 10u 1u 1u 1m 2m)
-Rsh sp 0 {FE['current_ranges']['low']['shunt_ohm']}
+Iload 0 sp PULSE(0 {2 * fe['limits']['max_inrush_a']} 10u 1u 1u 1m 2m)
+Rsh sp 0 {fe['current_ranges']['low']['shunt_ohm']}
 X1 sp 0 rng adci vdd3 CURRENT_CH
-Vn node 0 PULSE(0 40 10u 1u 1u 1m 2m)
-X2 node adcv vdd3 VOLTAGE_CH
+Vn node 0 PULSE(0 {clamp} 10u 1u 1u 1m 2m)
+X2 node adcv vdd3 VOLTAGE_CH {voltage_ch(fe)}
 .tran 50n 500u
 .control
 run
 meas tran vi MAX v(adci)
 meas tran vv MAX v(adcv)
 meas tran vimin MIN v(adci)
+let itop = (v(node) - v(adcv)) / {fe['voltage_divider']['r_top_ohm']}
+meas tran iclamp MAX itop
 quit
 .endc
 .end
 """, tmp_path)
     assert vals["vi"] <= limit and vals["vv"] <= limit
     assert vals["vimin"] >= -0.3
+    assert vals["iclamp"] < 0.2 * 0.5  # D4: 200 mA, derated by half
+
+
+@pytest.mark.parametrize("variant", list(VARIANTS))
+def test_protection_ratings_chain(variant):
+    """The TVS stands off the whole supply range; what it lets through at
+    full pulse current stays below the switches', the capacitor's and the
+    fuse's ratings (the numbers of the variant's example parts)."""
+    fe, p = VARIANTS[variant], parts(variant)
+    pr = fe["protection"]
+    assert pr["tvs_standoff_v"] >= fe["limits"]["supply_v_max"]
+    assert pr["tvs_clamp_max_v"] < pr["switch_vds_v"]
+    assert pr["tvs_clamp_max_v"] < pr["bulk_capacitor_v"]
+    assert pr["fuse_v_dc"] >= fe["limits"]["supply_v_max"]
+    # the parts list says the same
+    assert f"{pr['switch_vds_v']:g} V" in p["Q1"]["rating"]
+    assert f"{pr['bulk_capacitor_v']:g} V" in p["C1"]["rating"]
+    assert f"{pr['tvs_standoff_v']:g} V" in p["D1"]["value"]
+    assert f"{pr['fuse_v_dc']:g} V DC" in p["F1"]["rating"]
+    # below the usual 60 V DC limit of safety extra-low voltage (common practice)
+    assert fe["limits"]["supply_v_max"] < 60
 
 
 def test_whole_tester_deck_runs(tmp_path):

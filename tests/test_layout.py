@@ -12,7 +12,7 @@ import pytest
 PACKAGE = Path(__file__).resolve().parent.parent / "host" / "glowtrace"
 FLOW = ["tester", "logbook", "analysis", "circuits", "judgement", "outputs", "procedures",
         "cli"]
-SHARED = {"__init__", "paths", "errors", "catalogue", "config", "outfile"}
+SHARED = {"__init__", "paths", "errors", "catalogue", "config", "outfile", "safety"}
 
 
 def _modules():

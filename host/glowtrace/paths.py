@@ -15,6 +15,9 @@ REPO_ROOT = PACKAGE_DIR.parent.parent
 FIRMWARE_DIR = REPO_ROOT / "firmware"
 FIXTURES_DIR = REPO_ROOT / "fixtures_hw"
 FRONTEND_PATH = REPO_ROOT / "schematics" / "frontend.json"
+# the reference tester's variants: the supply they take (schematics/BUILD.md)
+FRONTEND_VARIANTS = {"30V": FRONTEND_PATH,
+                     "55V": REPO_ROOT / "schematics" / "frontend-55v.json"}
 TUNGSTEN_PATH = PACKAGE_DIR / "data" / "tungsten_resistivity.csv"
 
 

@@ -173,6 +173,10 @@ def cmd_string(args) -> int:
         hanging(ui.out, lines)
         from ..outputs.plots import string_terminal_plot
         _tail(r, string_terminal_plot(run, rated, min(ui.out.width, 100)))
+        ui.warn(out["caution"])
+    from .. import safety
+    # a series string is what AC/DC sets run: the set's chassis may be live
+    out["caution"] = safety.MAINS_CHASSIS
     return _emit(args, out, render)
 
 

@@ -12,18 +12,31 @@ from .figures import gains_table
 
 
 def cmd_socket(args) -> int:
-    from ..tester.sockets import wiring_for
+    from .. import safety
+    from ..tester.sockets import variant_for, variant_hint, variant_limits, wiring_for
     t = catalogue.load().get(args.type)
     fitted = args.fitted.split(",") if args.fitted else None
-    w = wiring_for(t, fitted)
-    res = {"type": t.name, "socket": w.socket, "wiring": w.wiring, "supply_pin": w.supply_pin,
-           "section_pins": w.section_pins, "supply_v": w.supply_v, "section_amps": w.section_a,
-           "sections": "".join(w.section_pins)}
-    ui.emit(args, res, lambda r: ui.out.print(
-        f"{t.name}: {w.describe()}.\nCapture with --section "
-        f"{'A, B or AB' if len(w.section_pins) > 1 else 'A'}; each section draws "
-        f"{w.section_a:g} A hot and several times that at switch-on "
-        f"({'--range high' if w.section_a * 8 > 3.1 else 'the low range suits'})."))
+    volts = t.section_rating().volts
+    variant = args.variant or variant_for(volts)
+    if variant is None:
+        raise GlowtraceError(f"a {t.name} heater needs {volts:g} V: {variant_hint(volts)}")
+    w = wiring_for(t, fitted, variant_limits()[variant])
+    res = {"type": t.name, "variant": variant, "socket": w.socket, "wiring": w.wiring,
+           "supply_pin": w.supply_pin, "section_pins": w.section_pins, "supply_v": w.supply_v,
+           "section_amps": w.section_a, "sections": "".join(w.section_pins),
+           "caution": safety.MAINS_CHASSIS if safety.series_string(t) else None}
+
+    def render(r):
+        ui.out.print(
+            f"{t.name}: {w.describe()}.\nThe {variant} variant of the tester"
+            + (" (series-string heaters to 55 V) is needed" if variant != "30V" else "")
+            + f". Capture with --section {'A, B or AB' if len(w.section_pins) > 1 else 'A'}; "
+            f"each section draws {w.section_a:g} A hot and several times that at switch-on "
+            f"({'--range high' if w.section_a * 8 > 3.1 else 'the low range suits'}).",
+            markup=False, highlight=False)
+        if r["caution"]:
+            ui.warn(r["caution"])
+    ui.emit(args, res, render)
     return 0
 
 
@@ -33,8 +46,8 @@ def cmd_calibrate(args) -> int:
     from ..logbook.store import Store
     port = args.port or find_tester()
     ref = calibration.Reference(args.ref, args.ref_tol / 100)
-    if not 1.0 <= args.supply_v <= 30.0:
-        raise GlowtraceError("--supply-v is your meter's reading of the heater supply, 1..30 V")
+    if not 1.0 <= args.supply_v <= 55.0:
+        raise GlowtraceError("--supply-v is your meter's reading of the heater supply, 1..55 V")
     simulated = port.startswith("glowsim://")
     loads = {"open": None, "reference": args.ref}
     steps = {
@@ -64,6 +77,10 @@ def cmd_calibrate(args) -> int:
                      f"{db_path(args)}", markup=False)
         gains_table(c)
     ui.emit(args, cal, render)
+    from .. import safety
+    hot = safety.hot_after(args.supply_v ** 2 / args.ref, "Each reference resistor")
+    if hot and not args.json:
+        ui.warn(hot)
     return 0
 
 
@@ -92,6 +109,10 @@ def cmd_selftest(args) -> int:
     else:
         ui.out.print(f"{len(checks) - len(failed)} of {len(checks)} checks passed."
                   + ("" if not failed else " Fix the first failure first; later ones often follow from it."))
+        from .. import safety
+        hot = safety.hot_after(6.3 ** 2 / args.load_ohm, "The dummy load")
+        if hot:
+            ui.warn(hot + " (at 6.3 V; more on a higher supply)")
     return 0 if not failed else 3
 
 
@@ -104,16 +125,21 @@ def cmd_firmware(args) -> int:
         if hello is None:
             raise GlowtraceError(f"no glowtrace firmware answered on {port}")
         res = {k: hello.get(k) for k in ("firmware", "protocol", "board", "reset_cause")}
+        res["variant"] = (hello.get("frontend") or {}).get("variant", "30V")
         res["calibration"] = (hello.get("calibration") or {}).get("at") or "nominal"
         res["this_glowtrace_installs"] = firmware_install.firmware_version()
         ui.emit(args, res, lambda r: ui.out.print(
             f"{port}: firmware {r['firmware']} (protocol {r['protocol']}) on {r['board']}, "
+            f"the {r['variant']} variant, "
             f"calibration {r['calibration']}; this glowtrace installs {r['this_glowtrace_installs']}"))
         return 0
     hello = firmware_install.install(port, progress=lambda m: ui.err.print(m),
-                                     wait_s=args.wait_s or firmware_install.ANSWER_WAIT_S)
-    ui.emit(args, {"port": port, "firmware": hello["firmware"], "board": hello["board"]},
-          lambda r: ui.out.print(f"Installed firmware {r['firmware']} on {r['board']} ({port})."))
+                                     wait_s=args.wait_s or firmware_install.ANSWER_WAIT_S,
+                                     variant=args.variant)
+    ui.emit(args, {"port": port, "firmware": hello["firmware"], "board": hello["board"],
+                   "variant": (hello.get("frontend") or {}).get("variant", "30V")},
+            lambda r: ui.out.print(f"Installed firmware {r['firmware']} on {r['board']} ({port}), "
+                                   f"the {r['variant']} variant's front-end numbers."))
     return 0
 
 
@@ -122,6 +148,8 @@ def register(sub, common) -> None:
     s.add_argument("type")
     s.add_argument("--fitted", help="sockets your tester has, comma-separated "
                                     "(default: any of the reference design's)")
+    s.add_argument("--variant", choices=["30V", "55V"],
+                   help="your tester's variant (default: the one the heater needs)")
     s.set_defaults(func=cmd_socket)
 
     s = sub.add_parser("calibrate", parents=[common],
@@ -149,4 +177,7 @@ def register(sub, common) -> None:
     s.add_argument("--wait-s", type=number(0, 600, above=True),
                    help="how long to wait for the board's answer, s (default: 3 for version, "
                         "20 after an install's restart; more for an emulated board)")
+    s.add_argument("--variant", choices=["30V", "55V"], default="30V",
+                   help="the board's build: 30V (heaters to 30 V, the default) or 55V "
+                        "(series-string heaters to 55 V; schematics/BUILD.md)")
     s.set_defaults(func=cmd_firmware)

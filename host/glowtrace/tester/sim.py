@@ -51,6 +51,8 @@ SETTINGS = {
     "adc_noise_lsb": Setting(float, "converter noise, LSB rms"),
     "pace": Setting(float, "simulated seconds per wall second (0, the default: flat out)"),
     "seed": Setting(int, "noise seed"),
+    "variant": Setting(str, "the tester's variant: 30V (heaters to 30 V) or 55V "
+                            "(series-string heaters to 55 V)", ("30V", "55V")),
     "link_log": Setting(str, "file to which the board appends, per write to the link, its "
                              "clock (us) and the bytes (the link benchmark reads it)"),
     "state_dir": Setting(str, "folder for the board's flash (default: per serial, under "
@@ -86,7 +88,8 @@ def build_scenario(**settings) -> dict:
         allowed = SETTINGS[key].choices
         if allowed and value not in allowed:
             raise GlowtraceError(f"{key} must be one of {', '.join(allowed)}")
-    scenario = {k: v for k, v in settings.items() if k != "tube" and k not in HEATER_KEYS}
+    scenario = {k: v for k, v in settings.items()
+                if k not in ("tube", "variant") and k not in HEATER_KEYS}
     if scenario.get("light") is not None:
         scenario["light"] = int(scenario["light"])
     # the board's flash (its calibration) lives on between runs, per serial,
@@ -99,7 +102,8 @@ def build_scenario(**settings) -> dict:
         raise GlowtraceError("section_v and section_a must be positive and "
                              "hot_cold_ratio above 1")
     scenario["tube"] = tube
-    scenario["frontend_path"] = str(paths.require(paths.FRONTEND_PATH))
+    scenario["frontend_path"] = str(paths.require(
+        paths.FRONTEND_VARIANTS[settings.get("variant") or "30V"]))
     scenario["tungsten_path"] = str(paths.require(paths.TUNGSTEN_PATH))
     return scenario
 

@@ -50,7 +50,7 @@ def wiring_for(t: TubeType, fitted: list[str] | None = None,
     need = sec.volts
     if supply_max_v is not None and need > supply_max_v:
         raise WiringError(f"a {t.name} heater needs {need:g} V, above this tester's "
-                          f"{supply_max_v:g} V supply limit")
+                          f"{supply_max_v:g} V supply limit: " + variant_hint(need))
     for name, w in bases()[t.base]["wirings"].items():
         secs = {s: int(p) for s, p in w["sections"].items()}
         if t.centre_tapped and w["supply_pin"] == t.centre_tap_pin and set(secs.values()) == pins:
@@ -59,6 +59,32 @@ def wiring_for(t: TubeType, fitted: list[str] | None = None,
             return Wiring(t.base, name, w["supply_pin"], secs, t.heater.volts, sec.amps)
     raise WiringError(f"no wiring of the {t.base} socket reaches the {t.name}'s heater pins "
                       f"{'-'.join(str(p) for p in t.heater_pins)}")
+
+
+@lru_cache(maxsize=1)
+def variant_limits() -> dict:
+    """The reference tester's variants and the supply each takes, V."""
+    out = {}
+    for name, path in paths.FRONTEND_VARIANTS.items():
+        with open(paths.require(path)) as f:
+            out[name] = json.load(f)["limits"]["supply_v_max"]
+    return out
+
+
+def variant_for(volts: float) -> str | None:
+    """The smallest variant whose supply takes these volts, or None."""
+    fits = [n for n, v in sorted(variant_limits().items(), key=lambda kv: kv[1]) if volts <= v]
+    return fits[0] if fits else None
+
+
+def variant_hint(volts: float) -> str:
+    v = variant_for(volts)
+    if v is None:
+        top = max(variant_limits().values())
+        return (f"no variant of the reference tester takes it ({top:g} V at most, below "
+                "the usual 60 V DC limit of safety extra-low voltage)")
+    return (f"the {v} variant of the tester takes it (schematics/BUILD.md, "
+            f"`glowtrace firmware install --variant {v}`)")
 
 
 # a cold heater draws up to about 7.2 times its rated current at switch-on
