@@ -1,8 +1,11 @@
-"""Draws the tester schematic (tester.svg) from code with schemdraw, so the
-drawing can be regenerated and checked like everything else:
-    .venv/bin/python schematics/draw_schematic.py [OUT.svg]
-One heater section is drawn; section B repeats it (Q2, RS2, U2, R8, C4, D3)
-on GPIO15 and ADC1. Values and ratings: parts.csv; numbers: frontend.json."""
+"""Draws the whole tester schematic from the circuit description
+(circuit.py) and the parts list (parts.csv), so the drawing cannot disagree
+with the netlist or with what ngspice simulates:
+    .venv/bin/python schematics/draw_schematic.py     # tester.svg, tester.png,
+                                                      # tester-55v.svg, tester-55v.png
+Every part is drawn with its reference and value; its pins end in net names
+(a connection is the same net name, as global labels in a schematic editor).
+The parts are grouped by function, one block per row."""
 
 import sys
 from pathlib import Path
@@ -11,82 +14,162 @@ import schemdraw
 import schemdraw.elements as elm
 
 HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+import circuit  # noqa: E402
+
+BLOCKS = [
+    ("Heater supply input and protection (isolated, current-limited bench supply only)",
+     ["J1", "F1", "C1", "D1"]),
+    ("Voltage channel: the rail to ADC2 (GPIO28)", ["R9", "R10", "C5", "D4"]),
+    ("Section A: low-side switch, shunt, current channel to ADC0 (GPIO26)",
+     ["R5", "R1", "R3", "Q1", "RS1", "U1", "R7", "C3", "D2"]),
+    ("Section B: the same to ADC1 (GPIO27)",
+     ["R6", "R2", "R4", "Q2", "RS2", "U2", "R8", "C4", "D3"]),
+    ("Gate driver (5 V from USB), controller board, room sensor",
+     ["U5", "U4", "U3", "R11"]),
+    ("Sockets and wiring selectors (socket plate); W1: the plate's heavy wires",
+     ["X1", "S1", "X2", "S2", "X3", "X4", "W1"]),
+]
+NOTES = [
+    "Range: GPIO13 (net RANGE) low = x100 (1 A/V, 3.3 A full scale), high = x10 (10 A/V, "
+    "33 A full scale) in U1 and U2.",
+    "S1 (B9A): CT = pin 9 to HS, 4 to HA, 5 to HB; single = 4 to HS, 5 to HA. "
+    "S2 (octal): position 1 = 2-7, 2 = 7-8, 3 = 2-8 (supply pin - section pin).",
+    "R3-R6 hold both gates low when the board is unpowered, in reset or crashed. "
+    "Pins end in net names: the same name is one connection.",
+]
+PIN_GAP = 0.9  # units between pins of a box
 
 
-def draw(path: Path) -> None:
-    schemdraw.use("svg")
+def _tag(d, xy, net: str, left: bool):
+    d += elm.Tag().at(xy).theta(180 if left else 0).label(net, fontsize=8)
+
+
+def _two_pin(d, x, y, part, label):
+    """A vertical two-pin symbol, its first pin's net on top."""
+    kind = part.ref.rstrip("0123456789")
+    pins = list(part.pins)
+    top, bot = part.pins[pins[0]], part.pins[pins[1]]
+    if kind == "D":  # the TVS: cathode on top (to the rail)
+        top, bot = part.pins["K"], part.pins["A"]
+        sym = elm.DiodeTVS().at((x, y - 2)).up()
+    elif kind == "F":
+        sym = elm.Fuse().at((x, y)).down()
+    elif kind == "C":
+        polar = "+" in part.pins
+        if polar:
+            top, bot = part.pins["+"], part.pins["-"]
+        sym = elm.Capacitor(polar=polar).at((x, y)).down()
+    else:
+        sym = elm.Resistor().at((x, y)).down()
+    d += sym.length(2).label(label, loc="bottom", fontsize=8, ofst=0.15)
+    width = 1.0 + 0.14 * len(label)  # the label beside the symbol, at 8 pt
+    d += elm.Line().at((x, y)).up(0.4)
+    _tag(d, (x, y + 0.4), top, left=False)
+    d += elm.Line().at((x, y - 2)).down(0.4)
+    _tag(d, (x, y - 2.4), bot, left=False)
+    return max(3.2, width)
+
+
+def _fet(d, x, y, part, label):
+    """The MOSFET: drain up, source down, gate to the right."""
+    q = elm.NFet(bulk=False).anchor("drain").at((x + 0.8, y)).right()
+    d += q
+    d += elm.Line().at(q.drain).up(0.4)
+    _tag(d, (q.drain[0], q.drain[1] + 0.4), part.pins["D"], left=False)
+    d += elm.Line().at(q.source).down(0.5)
+    _tag(d, (q.source[0], q.source[1] - 0.5), part.pins["S"], left=False)
+    d += elm.Line().at(q.gate).right(0.4)
+    _tag(d, (q.gate[0] + 0.4, q.gate[1]), part.pins["G"], left=False)
+    d += elm.Label().at((q.source[0] - 0.4, q.source[1] - 1.5)).label(label, halign="left",
+                                                                     fontsize=8)
+    return max(6.0, 0.6 + 0.14 * len(label))
+
+
+def _box(d, x, y, part, label):
+    """A box with its pins: half on the left, half on the right."""
+    names = list(part.pins)
+    half = (len(names) + 1) // 2
+    left, right = names[:half], names[half:]
+    h = max(len(left), len(right)) * PIN_GAP + 0.4
+    # room for the longest pin names of both sides side by side (7 pt)
+    w = max(2.2, 0.9 + 0.2 * (max(map(len, left)) + max(map(len, right or [""]))))
+    # anchors named apart from the pins' names: a pin called "1" or "2"
+    # would clash with the box's own anchors
+    pins = ([elm.IcPin(name=n, side="left", slot=f"{i + 1}/{len(left)}", anchorname=f"p_{n}")
+             for i, n in enumerate(left)]
+            + [elm.IcPin(name=n, side="right", slot=f"{i + 1}/{len(right)}",
+                         anchorname=f"p_{n}") for i, n in enumerate(right)])
+    # .right(): the drawing's last direction (down, from a resistor) would turn the box
+    ic = elm.Ic(pins=pins, size=(w, h), pinspacing=PIN_GAP, lblsize=7).at((x + 1.4, y - h)).right()
+    ic = ic.label(label, loc="top", fontsize=8)
+    d += ic
+    for n in left:
+        a = getattr(ic, f"p_{n}")
+        d += elm.Line().at(a).left(0.3)
+        _tag(d, (a[0] - 0.3, a[1]), part.pins[n], left=True)
+    for n in right:
+        a = getattr(ic, f"p_{n}")
+        d += elm.Line().at(a).right(0.3)
+        _tag(d, (a[0] + 0.3, a[1]), part.pins[n], left=False)
+    return w + 4.2, h
+
+
+def _label(part, rows) -> str:
+    if part.ref == "W1":
+        return "W1 plate wiring"
+    # the value's first clause: the full requirement is in parts.csv
+    return f"{part.ref} {rows[part.ref]['value'].split(',')[0]}"
+
+
+def draw(path: Path, variant: str = "30V") -> None:
+    """Draw the variant's schematic to path (.svg or .png)."""
+    schemdraw.use("matplotlib" if path.suffix == ".png" else "svg")
+    rows = circuit.rows(variant)
+    parts = {p.ref: p for p in circuit.parts()}
+    drawn = [r for _, refs in BLOCKS for r in refs]
+    missing = set(parts) - set(drawn)
+    if missing:
+        raise ValueError(f"parts not placed in any block: {sorted(missing)}")
     with schemdraw.Drawing(show=False) as d:
-        d.config(fontsize=10, unit=2.0)
-        # supply input, fuse, rail; bulk capacitor and TVS to ground
-        d += elm.Dot(open=True).at((0, 0)).label("J1 + 2-30 V DC", loc="left")
-        d += elm.Fuse().at((0, 0)).to((3, 0)).label("F1 10 A T")
-        d += elm.Line().at((3, 0)).to((16, 0))
-        d += elm.Dot().at((4, 0))
-        d += elm.Capacitor(polar=True).at((4, 0)).to((4, -2.5)).label("C1 1000 uF", loc="bottom")
-        d += elm.Ground().at((4, -2.5))
-        d += elm.Dot().at((6, 0))
-        d += elm.DiodeTVS().at((6, -2.5)).to((6, 0)).label("D1 33 V", loc="bottom")
-        d += elm.Ground().at((6, -2.5))
-        # voltage channel: divider above the rail
-        d += elm.Dot().at((8, 0))
-        d += elm.Line().at((8, 0)).to((8, 3))
-        d += elm.Resistor().at((8, 3)).to((11, 3)).label("R9 100 k")
-        d += elm.Dot().at((11, 3))
-        d += elm.Resistor().at((11, 3)).to((11, 1.2)).label("R10 10 k", loc="bottom")
-        d += elm.Ground().at((11, 1.2))
-        d += elm.Line().at((11, 3)).to((13, 3))
-        d += elm.Dot().at((13, 3))
-        d += elm.Capacitor().at((13, 3)).to((13, 1.2)).label("C5 910 p", loc="bottom")
-        d += elm.Ground().at((13, 1.2))
-        d += elm.Line().at((13, 3)).to((15, 3))
-        d += elm.Dot(open=True).at((15, 3)).label("ADC2 / GPIO28 (v), clamps D4", loc="right")
-        # heater section A from the centre tap, low-side switch, shunt
-        d += elm.Dot().at((16, 0)).label("socket centre tap (X1 pin 9, CT wiring)", loc="top")
-        d += elm.Resistor().at((16, 0)).to((16, -3)).label("heater section A", loc="bottom")
-        d += (q1 := elm.NFet(bulk=False).anchor("drain").at((16, -3)).label("Q1", loc="left"))
-        sx, sy = q1.source
-        d += elm.Line().at(q1.source).to((sx, -10))
-        d += elm.Dot().at((sx, -10))
-        d += elm.Resistor().at((sx, -10)).to((sx, -12.5)).label("RS1 10 m", loc="bottom")
-        d += elm.Ground().at((sx, -12.5))
-        # gate (on the right): gate resistor, pull-down, driver, GPIO
-        gx, gy = q1.gate
-        d += elm.Resistor().at((gx, gy)).to((gx + 3, gy)).label("R1 10")
-        d += elm.Dot().at((gx + 3, gy))
-        d += elm.Resistor().at((gx + 3, gy)).to((gx + 3, gy - 2.2)).label("R3 100 k",
-                                                                           loc="bottom")
-        d += elm.Ground().at((gx + 3, gy - 2.2))
-        d += elm.Line().at((gx + 3, gy)).to((gx + 5, gy))
-        d += elm.Ic(pins=[elm.IcPin(name="OUT", side="left"), elm.IcPin(name="IN", side="right")],
-                    size=(2, 1.5)).anchor("OUT").at((gx + 5, gy)).label("U5 gate driver (5 V)",
-                                                                          loc="top")
-        d += elm.Line().at((gx + 7, gy)).to((gx + 9, gy))
-        d += elm.Dot(open=True).at((gx + 9, gy)).label("GPIO14 (R5 100 k to ground)",
-                                                        loc="right")
-        # current channel: amplifier, anti-alias filter, clamp, ADC0
-        d += elm.Line().at((sx, -10)).to((sx + 3, -10))
-        d += (u1 := elm.Opamp().anchor("in2").at((sx + 3, -10)).right()
-              .label("U1 x100 / x10", loc="center", ofst=(0, -1.3)))
-        d += elm.Line().at(u1.in1).left(0.8)
-        d += elm.Line().down(0.4).label("to RS1 low end", loc="left", fontsize=8)
-        d += elm.Resistor().at(u1.out).right().label("R7 1 k")
-        d += (adc := elm.Dot())
-        d += elm.Capacitor().at(adc.center).down().label("C3 8.2 n", loc="bottom")
-        d += elm.Ground()
-        d += elm.Diode().at(adc.center).up().label("D2 to 3.3 V", loc="top")
-        d += elm.Line().at(adc.center).right(1.5)
-        d += elm.Dot(open=True).label("ADC0 / GPIO26 (ia)", loc="right")
-        d += elm.Label().at((0, -15)).label(
-            "U4 RP2040/RP2350: GPIO14 and GPIO15 switch sections A and B through U5; GPIO13 "
-            "selects the current range of U1 and U2; GPIO22 reads the 1-Wire room sensor U3; "
-            "USB to the host. Section B repeats section A: Q2, RS2, U2, R8, C4, D3, ADC1.",
-            halign="left")
-        d += elm.Label().at((0, -16)).label(
-            "R3/R4 pull the gates and R5/R6 the driver inputs down: both heaters are off "
-            "whenever the board is unpowered, in reset or crashed. Values: parts.csv.",
-            halign="left")
-        d.save(str(path))
+        d.config(fontsize=9, unit=2.0, margin=1.0)
+        d += elm.Label().at((0, 2.5)).label(
+            f"glowtrace reference tester, {variant} variant: the whole circuit "
+            "(schematics/circuit.py; values from parts.csv)", halign="left", fontsize=12)
+        y = 0.0
+        for title, refs in BLOCKS:
+            d += elm.Label().at((0, y)).label(title, halign="left", fontsize=10)
+            y -= 1.2
+            x, row_h = 0.5, 3.2
+            for ref in refs:
+                p = parts[ref]
+                label = _label(p, rows)
+                if ref.startswith("Q"):
+                    x += _fet(d, x, y, p, label)
+                elif len(p.pins) == 2:
+                    x += _two_pin(d, x + 0.6, y, p, label) + 0.6
+                else:
+                    w, h = _box(d, x, y, p, label)
+                    x += w + 1.2
+                    row_h = max(row_h, h + 0.8)
+            y -= row_h + 1.6
+        for note in NOTES:
+            d += elm.Label().at((0, y)).label(note, halign="left", fontsize=8)
+            y -= 0.7
+        d.save(str(path), dpi=110) if path.suffix == ".png" else d.save(str(path))
+
+
+def draw_all(folder: Path = HERE) -> list[Path]:
+    out = []
+    for variant in circuit.VARIANTS:
+        stem = "tester" if variant == "30V" else "tester-55v"
+        for ext in (".svg", ".png"):
+            p = folder / (stem + ext)
+            draw(p, variant)
+            out.append(p)
+    return out
 
 
 if __name__ == "__main__":
-    draw(Path(sys.argv[1]) if len(sys.argv) > 1 else HERE / "tester.svg")
+    for p in draw_all(Path(sys.argv[1]) if len(sys.argv) > 1 else HERE):
+        print("wrote", p)
