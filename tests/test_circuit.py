@@ -181,8 +181,9 @@ def test_divider_power_at_the_highest_supply(variant):
 @pytest.mark.parametrize("variant", list(VARIANTS))
 def test_converter_inputs_stay_within_rating_at_overload(tmp_path, variant):
     """Twice the largest inrush on the low range, and the supply rail at the
-    TVS's largest clamping voltage: the converter's pins stay inside their
-    rating, and the clamp diodes' current inside theirs."""
+    TVS's largest clamping voltage: the converter's pins and the amplifier's
+    inputs stay inside their ratings, and the clamp diodes' current inside
+    theirs."""
     fe = VARIANTS[variant]
     limit = fe["adc"]["input_max_v"]
     clamp = fe["protection"]["tvs_clamp_max_v"]
@@ -201,6 +202,7 @@ run
 meas tran vi MAX v(adci)
 meas tran vv MAX v(adcv)
 meas tran vimin MIN v(adci)
+meas tran vsp MAX v(sp)
 let itop = (v(node) - v(adcv)) / {fe['voltage_divider']['r_top_ohm']}
 meas tran iclamp MAX itop
 quit
@@ -210,6 +212,9 @@ quit
     assert vals["vi"] <= limit and vals["vv"] <= limit
     assert vals["vimin"] >= -0.3
     assert vals["iclamp"] < 0.2 * 0.5  # D4: 200 mA, derated by half
+    # the amplifier's inputs sit on the low-side shunt: far inside its
+    # common-mode limit even at twice the largest inrush
+    assert vals["vsp"] < fe["protection"]["amplifier_input_max_v"]
 
 
 @pytest.mark.parametrize("variant", list(VARIANTS))
