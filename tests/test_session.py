@@ -138,3 +138,24 @@ def test_a_failing_tester_does_not_stop_the_others(tmp_path):
           for r in results}
     assert {by[r.label] for r in results if r.outcome == "refused"} == {"[2]"}
     assert {by[r.label] for r in results if r.outcome == "captured"} == {"[1]"}
+
+
+def test_the_last_tube_can_be_retested_without_losing_a_label(tmp_path):
+    """r after a result captures the last tube again, then the next label's
+    prompt comes back: the box's numbering goes on where it was."""
+    db = tmp_path / "s.db"
+    answers = iter(["", "r", "", "", "q"])
+    prompts = []
+
+    def ask(prompt):
+        prompts.append(prompt)
+        return next(answers)
+    s = ses.Session(db, ["glowsim://?tube=12BA6"], "12BA6", pattern=ses.LabelPattern("R-#"))
+    results = ses.run(s, ask, lambda _: None)
+    assert [(r.label, r.outcome) for r in results] == [("R-1", "captured"),
+                                                       ("R-1", "captured"),
+                                                       ("R-2", "captured")]
+    assert "r retest R-1" in prompts[1] and "Put R-1 back in" in prompts[2]
+    with Store(db) as st:
+        caps = sorted(r[0] for r in st.db.execute("SELECT tube FROM captures"))
+    assert caps == ["R-1", "R-1", "R-2"]

@@ -334,6 +334,8 @@ def _tester_loop(bench: _Bench, port: str, who: str, prefix: str, progress) -> N
     cfg = config.load(None)
     label = None
     retry = False
+    last = None    # this tester's last tube, for a retest
+    resume = None  # the label to come back to after a retest
     while not bench.stop.is_set():
         try:
             if not retry:
@@ -343,7 +345,8 @@ def _tester_loop(bench: _Bench, port: str, who: str, prefix: str, progress) -> N
             retry = False
             kind, section = bench.kind, bench.section
             answer = bench.ask(who, f"{prefix}Insert {label} ({kind.name}, section {section}) "
-                               "and press Enter; s skip, t TYPE change type, q stop: ").strip()
+                               "and press Enter; s skip, t TYPE change type, "
+                               + (f"r retest {last}, " if last else "") + "q stop: ").strip()
         except (EOFError, KeyboardInterrupt):
             bench.stop.set()
             return
@@ -353,6 +356,14 @@ def _tester_loop(bench: _Bench, port: str, who: str, prefix: str, progress) -> N
         if answer.lower() == "s":
             bench.record(TubeResult(label, "skipped"), prefix)
             continue
+        if answer.lower() == "r":
+            if last is None:
+                bench.say(f"{prefix}nothing to retest yet")
+                retry = True
+                continue
+            # the last tube again; this label's prompt comes back after it
+            resume, label = label, last
+            bench.ask(who, f"{prefix}Put {label} back in and press Enter: ")
         if answer.lower().startswith("t "):
             try:
                 new = catalogue.load().get(answer[2:].strip())
@@ -407,6 +418,9 @@ def _tester_loop(bench: _Bench, port: str, who: str, prefix: str, progress) -> N
         if raw.incomplete_reason == "interrupted by the user":
             bench.stop.set()
             return
+        last = label
+        if resume is not None:
+            label, resume, retry = resume, None, True
 
 
 def run(session: Session, ask, say, progress_for=None) -> list[TubeResult]:
