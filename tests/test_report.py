@@ -22,7 +22,9 @@ contact = "bench@quillwort.example"
 @pytest.fixture(scope="module")
 def reports(demo_run, tmp_path_factory):
     """An owner's visit (two 12AX7s, one past its limit) and a tube tested
-    once, written as a user writes them."""
+    once, written as a user writes them; with what --json said of each."""
+    import contextlib
+    import io
     from glowtrace.cli import main
     d = tmp_path_factory.mktemp("reports")
     (d / "shop.toml").write_text(SHOP)
@@ -30,9 +32,12 @@ def reports(demo_run, tmp_path_factory):
     out = {}
     for name, target in (("visit", "ysolde MARRIN"), ("once", "QW-0122-V5")):
         path = d / f"{name}.html"
-        assert main(["--db", db, "--json", "report", target, "-o", str(path), "--shop",
-                     str(d / "shop.toml")]) == 0
+        said = io.StringIO()
+        with contextlib.redirect_stdout(said):
+            assert main(["--db", db, "--json", "report", target, "-o", str(path), "--shop",
+                         str(d / "shop.toml")]) == 0
         out[name] = path
+        out[name + "_json"] = json.loads(said.getvalue())
     return out
 
 
@@ -124,11 +129,10 @@ def test_the_page_renders_in_a_real_browser(reports, tmp_path, name):
                          for w, h in boxes)  # A4 from the print CSS, in points
 
 
-def test_report_json_names_each_tube_with_its_verdict(demo_run, cli, tmp_path):
-    code, out, err = cli("--db", demo_run[0], "--json", "report", "Ysolde Marrin", "-o",
-                         tmp_path / "r.html")
-    assert code == 0, err
-    r = json.loads(out)
+def test_report_json_names_each_tube_with_its_verdict(reports):
+    r = reports["visit_json"]
     assert r["kind"] == "owner" and {t["tube"] for t in r["tubes"]} == {"QW-0117-V1",
                                                                         "QW-0117-V2"}
     assert all(t["verdict"] and t["advice"] for t in r["tubes"])
+    once = reports["once_json"]
+    assert once["kind"] == "tube" and once["status"] == once["tubes"][0]["status"]
