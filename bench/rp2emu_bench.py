@@ -10,8 +10,10 @@ capture through the real board layer, and prints:
     the CPU sends blocks over USB and runs the supervisor and the end rule,
     the converter is idle and the gap is time the curve is not seen (and not
     watched for over-current);
-  - the reaction to a short in the dense and in the mid phase, from the
-    gate's GPIO events: how close the watch on the transfer keeps up.
+  - the reaction to a short in the dense phase, at ten points across a
+    fast-phase chunk and the gap after it, and in the mid phase, from the
+    gate's GPIO events: how close the watch keeps up, inside a chunk and
+    between two.
 Needs what tests/test_rp2emu.py needs (node, `npm ci` in fixtures_hw/rp2emu,
 the MicroPython bundle). Takes two to four minutes."""
 
@@ -120,7 +122,12 @@ def main() -> int:
             print(f"  {p['phase']:6} {p['sets']:6d} {p['interval_us']:7d}us {p['oversample']:3d} "
                   f"{p['converter_share']:9.0%} {p['sampled_share']:8.1%} "
                   f"{p['largest_gap_us'] / 1000:9.1f} ms")
-        for at in (3000, 700000):
+        # a short in the dense phase, at points across a fast-phase chunk and
+        # the gap after it (about 45 ms on the emulated chip), and in the mid
+        # phase: in a chunk the transfer's watch sees it; in a gap, the reading
+        # before each frame sent
+        fast = [100000 + 5000 * k for k in range(10)]
+        for at in [3000, *fast, 700000]:
             print(f"short at {at / 1000:g} ms: gate low {short_reaction(emu, at)} us after it")
     return 0
 

@@ -227,6 +227,18 @@ class Rp2Board:
         self.wdt.feed()
         return n_sets, t0, False
 
+    def over_current(self, trip_code, current_idx):
+        """One conversion of each switched current channel now, between two
+        chunks, when no transfer runs (the converter idles while blocks go
+        to USB): the heater off and True when one is over trip_code."""
+        if not self.mask:
+            return False
+        for c in current_idx:
+            if self.adcs[self.active[c]].read_u16() >> 4 > trip_code:
+                self.heater(0)
+                return True
+        return False
+
     def switch_on(self, mask, buf, n_sets, interval, oversample, trip_code, current_idx):
         """Switch the heater on with the converter already running: the DMA
         is set up and the conversions started first, then the gates (set-up

@@ -209,6 +209,22 @@ class SimBoard:
         """Sample only these channels (in the order of `channels`)."""
         self.active = [self.channels.index(n) for n in names]
 
+    def over_current(self, trip_code, current_idx):
+        """One conversion of each switched current channel now (between two
+        chunks of sets): the heater off and True when one is over trip_code."""
+        if not self.mask:
+            return False
+        amps = self._solve()
+        for c in current_idx:
+            name = self.channels[self.active[c]]
+            if name in ("ia", "ib"):
+                a = amps[0 if name == "ia" else 1]
+                if self._code_sum(c, a / self.amps_per_volt
+                                  * (1.0 + self.amp_gain_err[self.range]), 1) > trip_code:
+                    self.mask = 0
+                    return True
+        return False
+
     def sample(self, buf, n_sets, t_start, interval, oversample, trip_code, current_idx):
         """Fill buf with n_sets sets of code sums starting at t_start (us),
         one set every interval us. Switches the heater off at once, and

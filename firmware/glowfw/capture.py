@@ -28,6 +28,11 @@ class CaptureError(ParamError):
     pass
 
 
+class _OverCurrent(Exception):
+    """An over-current seen between two chunks (capture.run catches it);
+    args[0]: the board's time of the reading, us."""
+
+
 def parse_params(raw, board):
     p = merge(DEFAULTS, raw, "capture")
     if p["section"] not in SECTION_MASKS:
@@ -88,8 +93,18 @@ class Capture:
         self.sets = 0
         self.abort_requested = False
         self.trip_record = None
+        self.watch_code = 0  # while the heater is on: each frame sent is watched
+
+    def _watch(self):
+        """Between chunks the converter does not run and blocks go to the
+        link: one reading of the currents before each frame, so a short
+        that begins there waits a frame, not the whole gap."""
+        if self.watch_code and self.board.over_current(self.watch_code, self.current_idx):
+            self.watch_code = 0
+            raise _OverCurrent(self.board.now_us())
 
     def send_block(self, phase_no, t_rel, interval, oversample, buf, first, count):
+        self._watch()
         nch = self.nch
         head = struct.pack(proto.BLOCK_HEADER, self.id, self.block_index,
                            phase_no, nch, count, oversample, t_rel, interval)
@@ -163,6 +178,7 @@ class Capture:
                         t_on, (done, t_first, tripped) = b.switch_on(
                             SECTION_MASKS[p["section"]], into, n, interval, osm,
                             trip_code, self.current_idx)
+                        self.watch_code = trip_code
                         self.sup.heard_host()
                         pending.append((time.ticks_diff(t_base, t_on), None, n_base))
                     else:
@@ -214,12 +230,17 @@ class Capture:
                     break
             if reason is None:
                 reason = "max_time"
+        except _OverCurrent as e:  # seen between chunks: already off
+            reason = "trip"
+            cause = supervisor.OVER_CURRENT
+            t_off_rel = time.ticks_diff(e.args[0], t_on)
         except Exception as e:  # any fault: off first, then report
             b.heater(0)
             reason = "trip"
             cause = supervisor.EXCEPTION
             detail = repr(e)
         finally:
+            self.watch_code = 0  # the heater goes off: the last sends are not watched
             t_off = b.heater(0)
             b.use_channels(b.channels)
         if pending:  # a capture that ended in the fast phase: the rest, heater off

@@ -22,6 +22,8 @@ class FakeBoard:
         self.wall_follows = False  # True: wall clock runs with heater time
         self.active = [0, 1, 2]
         self.active_log = []  # every use_channels call
+        self.short_between_chunks_at = None  # a short only the gap's checks can see
+        self.checks = []  # times of over_current() calls
 
     def use_channels(self, names):
         self.active = [self.channels.index(n) for n in names]
@@ -63,6 +65,14 @@ class FakeBoard:
         if self.short:
             return 50.0
         return self.amps
+
+    def over_current(self, trip_code, current_idx):
+        self.checks.append(self.t)
+        at = self.short_between_chunks_at
+        if self.mask and at is not None and self.t >= at:
+            self.heater(0)
+            return True
+        return False
 
     def sample(self, buf, n, t_start, interval, osm, trip_code, current_idx):
         t0 = t_start if t_start > self.t else self.t

@@ -55,6 +55,25 @@ def test_short_trips_within_one_ms():
     assert off - on <= 1000
 
 
+def test_a_short_between_chunks_is_caught_before_the_next_frame():
+    """Between two chunks the converter idles while blocks go to the link: a
+    short that begins there is read before the next frame is sent, not when
+    the next chunk starts."""
+    b = FakeBoard()
+    b.short_between_chunks_at = 100000  # in the fast phase
+    fr = run(b, {"section": "A", "max_s": 2})
+    trip = json.loads(bytes(by_type(fr, proto.TRIP)[0][2]))
+    assert trip["cause"] == "over_current", trip
+    on = [t for t, m in b.switch_log if m][0]
+    off = [t for t, m in b.switch_log if t >= on and m == 0][0]
+    # the first reading at or after the short is the one that switches off
+    first = min(t for t in b.checks if t >= 100000)
+    assert off == first and trip["at_us"] == off - on
+    # one reading per frame sent while on (here two frames per fast chunk:
+    # its own block and a held dense one); the short itself only these see
+    assert len([t for t in b.checks if t < 100000]) >= 4
+
+
 def test_open_heater_trips():
     b = FakeBoard(amps=0.0)
     fr = run(b, {"section": "B"})
