@@ -244,6 +244,12 @@ def cmd_report(args) -> int:
     return 0
 
 
+def _owner_or_lot(s) -> None:
+    """--owner and --lot: the same filter (a lot is kept as an owner), any case."""
+    s.add_argument("--owner", help="only this owner's tubes (any case)")
+    s.add_argument("--lot", help="only this lot's tubes (any case; a lot is kept as an owner)")
+
+
 def register(sub, common) -> None:
     s = sub.add_parser("history", parents=[common],
                        help="a tube's captures, trends and assessment")
@@ -255,8 +261,7 @@ def register(sub, common) -> None:
                        help="every tube with grade and key figures (dealers)")
     s.add_argument("--csv", metavar="FILE", help="write the list as CSV")
     s.add_argument("--type", help="only this type")
-    s.add_argument("--owner", help="only this owner's tubes (any case)")
-    s.add_argument("--lot", help="only this lot's tubes (any case)")
+    _owner_or_lot(s)
     s.add_argument("--grade", help="only this grade")
     s.add_argument("--status", help="only this status, e.g. 'at limit'")
     s.add_argument("--sort", choices=["tube", "type", "grade", "status", "current"],
@@ -280,8 +285,7 @@ def register(sub, common) -> None:
     s.add_argument("--tolerance", type=number(0),
                    help="largest spread in a set: per cent of its mean for current and "
                         "warmup (default 2 and 5), flash index units for flash (default 0.02)")
-    s.add_argument("--owner", help="only this owner's tubes (any case)")
-    s.add_argument("--lot", help="only this lot's tubes (a lot is kept as an owner)")
+    _owner_or_lot(s)
     s.add_argument("--config", help="scoring settings TOML")
     s.set_defaults(func=cmd_match)
 
@@ -290,8 +294,7 @@ def register(sub, common) -> None:
                        help="a printable sheet of tube labels with QR codes (PDF or SVG)")
     s.add_argument("tube", nargs="*", help="labels of the tubes (default: all chosen)")
     s.add_argument("-o", "--output", required=True, metavar="FILE.pdf|FILE.svg")
-    s.add_argument("--owner", help="only this owner's tubes (any case)")
-    s.add_argument("--lot", help="only this lot's tubes (any case)")
+    _owner_or_lot(s)
     s.add_argument("--type", help="only this type")
     s.add_argument("--paper", choices=list(PAPERS), default="A4", help="paper (default A4)")
     s.add_argument("--grid", choices=list(GRIDS),
