@@ -21,13 +21,21 @@ def cmd_session(args) -> int:
     s = ses.Session(db_path(args), ports, kind.name, args.section, args.range, args.lot,
                     pattern, args.count, args.max_s, args.room_c)
 
+    bar, progress_for = _progress_lines(ports, args.max_s)
+
     def ask(prompt: str) -> str:
         if args.yes:  # scripted: no prompt to insert (the simulated tester, a jig)
             if "Label of" in prompt:
                 raise EOFError
             return "s" if "Retest " in prompt else ""  # a refused tube is skipped
-        ui.err.print(prompt, end="", markup=False)
-        line = sys.stdin.readline()
+        # the progress lines stop while the user answers: a live display
+        # redrawn under the cursor would scatter what they type
+        bar.stop()
+        try:
+            ui.err.print(prompt, end="", markup=False)
+            line = sys.stdin.readline()
+        finally:
+            bar.start()
         if not line:
             raise EOFError
         return line
@@ -35,7 +43,6 @@ def cmd_session(args) -> int:
     def say(text: str) -> None:
         ui.err.print(text, markup=False, highlight=False)
 
-    bar, progress_for = _progress_lines(ports, args.max_s)
     with bar:
         results = ses.run(s, ask, say, progress_for)
     results = sorted(results, key=lambda r: r.label)  # the box's order, not the finish's
