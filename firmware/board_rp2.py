@@ -29,6 +29,7 @@ _RP2350 = "RP2350" in sys.implementation._machine
 _ADC_BASE = const(0x400A0000) if _RP2350 else const(0x4004C000)
 _ADC_CS = _ADC_BASE
 _ADC_FCS = _ADC_BASE + 0x08
+_ADC_RESULT = _ADC_BASE + 0x04
 _ADC_FIFO = _ADC_BASE + 0x0C
 _ADC_DIV = _ADC_BASE + 0x10
 # DREQ numbers from the RP2040 and RP2350 datasheets (DMA chapter); the
@@ -39,7 +40,8 @@ _ADC_CLOCK_HZ = const(48000000)
 # the longest stretch without a feed is the capture's end (every held block
 # to a host that does not read: about 1 s at 50 ms a frame)
 _WDT_MS = const(3000)
-_STALL_MARGIN_US = const(2000)  # a DMA transfer this much past its time has stalled
+_STALL_MARGIN_US = const(2000)
+_ONE_CONVERSION_MAX_US = const(200)  # a conversion takes 2 us  # a DMA transfer this much past its time has stalled
 _WRITE_WAIT_MS = const(50)  # longest wait to hand one frame to USB
 _FE_PATH = "/frontend.json"
 _CAL_PATH = "/calibration.json"
@@ -234,10 +236,22 @@ class Rp2Board:
         if not self.mask:
             return False
         for c in current_idx:
-            if self.adcs[self.active[c]].read_u16() >> 4 > trip_code:
+            if self._convert_once(self.inputs[self.active[c]]) > trip_code:
                 self.heater(0)
                 return True
         return False
+
+    def _convert_once(self, adc_input):
+        """One conversion by the registers, with a limit: ADC.read_u16()
+        waits for ever on a converter that has stopped (the emulated RP2040's
+        stalled-converter test hung in it until the watchdog)."""
+        machine.mem32[_ADC_CS] = 1 | (adc_input << 12) | (1 << 2)  # EN, AINSEL, START_ONCE
+        t = time.ticks_us()
+        while not machine.mem32[_ADC_CS] & (1 << 8):  # READY
+            if time.ticks_diff(time.ticks_us(), t) > _ONE_CONVERSION_MAX_US:
+                self.heater(0)
+                raise OSError("converter stalled: no result in %d us" % _ONE_CONVERSION_MAX_US)
+        return machine.mem32[_ADC_RESULT] & 0xFFF
 
     def switch_on(self, mask, buf, n_sets, interval, oversample, trip_code, current_idx):
         """Switch the heater on with the converter already running: the DMA
