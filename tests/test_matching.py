@@ -5,7 +5,7 @@ import itertools
 import json
 
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import example, given, settings, strategies as st
 
 from glowtrace.judgement.matching import best_sets, spread_of
 
@@ -33,6 +33,10 @@ def brute_force(values: dict, size: int, tol: float, kind: str):
 
 
 @settings(max_examples=150, deadline=None)
+# found by hypothesis when the relative spread was over the set's mean: the
+# best two quads interleave, and runs of neighbours made only one
+@example(xs=[1.0, 1.0, 1.0, 0.5, 0.5, 0.65625, 0.65625, 0.34375], size=4, tol=0.59375,
+         kind="relative")
 @given(st.lists(st.floats(0.1, 1.0), min_size=2, max_size=8),
        st.sampled_from([2, 3, 4]), st.floats(0.0, 0.6), st.sampled_from(["relative", "absolute"]))
 def test_the_grouping_is_as_good_as_the_best_partition(xs, size, tol, kind):

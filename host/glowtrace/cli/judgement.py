@@ -139,7 +139,7 @@ def cmd_match(args) -> int:
                  f"{s['spread']:.3g}", f"{100 * s['relative_spread']:.2f} %"]
                 for n, s in enumerate(r["sets"], 1)]
         fit(ui.out, [Col("set", justify="right"), Col("tubes"), Col(f"{words} ({unit})".replace(" ()", "")),
-                     Col("spread", justify="right"), Col("of mean", justify="right", priority=1)],
+                     Col("spread", justify="right"), Col("of lowest", justify="right", priority=1)],
             rows, title=f"{type_name}: sets of {args.size} within {tol_text}",
             caption=f"{len(r['sets'])} set(s); {r['method']}. Scope: {r['scope']}.")
         if r["left_over"]:
@@ -283,8 +283,9 @@ def register(sub, common) -> None:
                    help="figure to match: current (hot current), warmup (to 90 %%), "
                         "flash (flash index); default current")
     s.add_argument("--tolerance", type=number(0),
-                   help="largest spread in a set: per cent of its mean for current and "
-                        "warmup (default 2 and 5), flash index units for flash (default 0.02)")
+                   help="largest spread in a set: per cent above its lowest value for "
+                        "current and warmup (default 2 and 5), flash index units for flash "
+                        "(default 0.02)")
     _owner_or_lot(s)
     s.add_argument("--config", help="scoring settings TOML")
     s.set_defaults(func=cmd_match)
