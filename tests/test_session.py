@@ -159,3 +159,24 @@ def test_the_last_tube_can_be_retested_without_losing_a_label(tmp_path):
     with Store(db) as st:
         caps = sorted(r[0] for r in st.db.execute("SELECT tube FROM captures"))
     assert caps == ["R-1", "R-1", "R-2"]
+
+
+def test_all_testers_found_on_usb_run_side_by_side(monkeypatch, cli, tmp_path):
+    """--all-testers takes every board that answers on USB (here two
+    simulated testers stand in for the scan's result)."""
+    from glowtrace.tester import ports
+    found = ["glowsim://?tube=12BA6&serial=U1", "glowsim://?tube=12BA6&serial=U2"]
+    monkeypatch.setattr(ports, "scan", lambda probe_boards=True: [
+        {"device": d, "glowtrace": True} for d in found])
+    db = tmp_path / "s.db"
+    code, out, err = cli("--db", db, "--json", "session", "--all-testers", "--type", "12BA6",
+                         "--labels", "U-#", "--count", "4", "--yes")
+    assert code == 0, err
+    assert [r["outcome"] for r in json.loads(out)] == ["captured"] * 4
+    with Store(db) as s:
+        boards = {r[0] for r in s.db.execute(
+            "SELECT json_extract(hello, '$.board') FROM tester_records")}
+    assert boards == {"sim-U1", "sim-U2"}
+    monkeypatch.setattr(ports, "scan", lambda probe_boards=True: [])
+    code, _, err = cli("--db", db, "session", "--all-testers", "--type", "12BA6", "--yes")
+    assert code != 0 and "no glowtrace tester found" in err

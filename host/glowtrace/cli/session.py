@@ -9,13 +9,15 @@ from .tables import Col, fit
 
 def cmd_session(args) -> int:
     from ..procedures import session as ses
-    from ..tester.ports import find_tester
+    from ..tester.ports import find_tester, find_testers
     from .. import catalogue
     kind = catalogue.load().get(args.type)  # an unknown type stops here
     if args.scan and args.labels:
         raise ses.PatternError("give --labels or --scan, not both")
     pattern = None if args.scan else ses.LabelPattern(args.labels or "T-###", args.start)
-    ports = args.port or [find_tester()]
+    if args.all_testers and args.port:
+        raise ses.PatternError("give --port or --all-testers, not both")
+    ports = args.port or (find_testers() if args.all_testers else [find_tester()])
     if len(set(ports)) != len(ports):
         raise ses.PatternError("a tester is named twice in --port")
     s = ses.Session(db_path(args), ports, kind.name, args.section, args.range, args.lot,
@@ -97,6 +99,8 @@ def register(sub, common) -> None:
     s.add_argument("--port", action="append",
                    help="serial device or glowsim:// URL; give it again for each tester run "
                         "side by side (default: the one tester found on USB)")
+    s.add_argument("--all-testers", action="store_true",
+                   help="run every glowtrace tester found on USB side by side")
     s.add_argument("--type", required=True, help="tube type of the box, e.g. 6V6")
     s.add_argument("--section", choices=["A", "B", "AB"],
                    help="sections to switch on (default: every section of the type)")

@@ -34,6 +34,16 @@ def scan(probe_boards: bool = True) -> list[dict]:
     return out
 
 
+def find_testers() -> list[str]:
+    """Every glowtrace tester plugged in (a bench session runs them side by
+    side), or a clear error when there is none."""
+    found = [p["device"] for p in scan() if p["glowtrace"]]
+    if not found:
+        raise LinkError("no glowtrace tester found on USB: plug them in, or give --port "
+                        "for each (a device, or glowsim:// for the simulated tester)")
+    return found
+
+
 def find_tester() -> str:
     """The one glowtrace tester plugged in, or a clear error."""
     found = [p["device"] for p in scan() if p["glowtrace"]]
