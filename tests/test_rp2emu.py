@@ -243,8 +243,10 @@ def test_host_silence_switches_off(installed):
         port.close()
     assert trip is not None and trip["cause"] == "host_silent", trip
     on, off = _gate_on_and_off(installed, since)
-    # heard last at switch-on; the mid phase's chunk is 100 ms of sets
-    assert 1000000 <= off - on <= 1000000 + 100000 + 5000, off - on
+    # heard last at switch-on; checked after each chunk: the mid phase's chunk
+    # is 100 ms of sets, and its frames go out before the check (up to about
+    # 25 ms on the emulated USB, bench/rp2emu_bench.py)
+    assert 1000000 <= off - on <= 1000000 + 100000 + 30000, off - on
 
 
 def test_a_hang_is_ended_by_the_watchdog_with_the_gates_low_through_the_reset(installed):
