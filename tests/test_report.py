@@ -136,3 +136,19 @@ def test_report_json_names_each_tube_with_its_verdict(reports):
     assert all(t["verdict"] and t["advice"] for t in r["tubes"])
     once = reports["once_json"]
     assert once["kind"] == "tube" and once["status"] == once["tubes"][0]["status"]
+
+
+def test_plain_verdicts_for_a_first_test_and_a_steady_tube():
+    from glowtrace.judgement.verdict import plain
+    at = "2026-03-10T09:00:00Z"
+    both = [{"uuid": "u1", "scored": 1, "at": at, "section": s} for s in "AB"]
+    first = plain({"status": "no baseline yet", "grade": "select", "sections": {},
+                   "captures": both})
+    assert first["verdict"] == "Heater fine today (first test)"  # one capture, two sections
+    off = plain({"status": "no baseline yet", "grade": "unfit", "sections": {},
+                 "captures": both})
+    assert off["level"] == "watch" and "outside the usual range" in off["verdict"]
+    steady = plain({"status": "steady", "grade": "select", "sections": {}, "captures": both})
+    assert steady["verdict"] == "Heater fine, no change since March 2026"
+    assert plain({"status": "heater fault", "grade": "unfit", "sections": {},
+                  "captures": both})["advice"] == "Replace the tube."

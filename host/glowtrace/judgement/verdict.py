@@ -69,7 +69,7 @@ def plain(result: dict, none_grade: str = "unfit", now: datetime | None = None) 
                 "its first test"), "advice": "Nothing to do now; test it again at the next "
                                             "visit."}
     if status == NO_BASELINE:
-        n = len(scored)
+        n = len({c["uuid"] for c in scored})  # a capture of both sections is one test
         off_type = result.get("grade") == none_grade
         return {"level": "watch" if off_type else "ok",
                 "verdict": ("Heater outside the usual range for its type" if off_type else
