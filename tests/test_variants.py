@@ -66,3 +66,10 @@ def test_calibration_and_selftest_say_the_load_is_hot(cli, tmp_path):
     assert code == 0 and "reference resistor is hot" in " ".join(err.split())
     code, out, err = cli("selftest", "--port", "glowsim://", "--load-ohm", "4.7", "--yes")
     assert "dummy load is hot" in " ".join(err.split())
+
+
+def test_calibration_refuses_a_supply_above_the_boards_variant(cli, tmp_path):
+    port = f"glowsim://?serial=HOT2&state_dir={tmp_path}"
+    code, _, err = cli("--db", tmp_path / "c.db", "calibrate", "--port", port, "--supply-v",
+                       "50", "--yes")
+    assert code != 0 and "above this tester's 30 V (30V variant)" in err

@@ -10,6 +10,7 @@ the logbook whatever ends the session (the stop key, Ctrl-C, an error).
 The prompts and the output go through `ask` and `say` callables, so the
 command drives a terminal and the tests drive a script."""
 
+import math
 import re
 from dataclasses import dataclass, field
 
@@ -96,7 +97,6 @@ def cool_wait_s(kind, excess: float) -> float:
     come within 2 % of it."""
     watts = kind.section_rating().watts * (2 if kind.centre_tapped else 1)
     tau = next(t for w, t in COOL_TAU_S if watts <= w)
-    import math
     return tau * math.log(max(excess, 0.021) / 0.02)
 
 

@@ -178,6 +178,10 @@ def run(get_tester, supply_v: float, meter_tol: float, ref: Reference,
     'reference') once the user has set the fixture up for it."""
     t = get_tester("open")
     fe = t.hello["frontend"]
+    top = fe["limits"]["supply_v_max"]
+    if supply_v > top:
+        raise GlowtraceError(f"--supply-v {supply_v:g} V is above this tester's {top:g} V "
+                             f"({fe.get('variant', '30V')} variant): lower the supply")
     dual = "ib" in t.hello["channels"]
     sections = ("A", "B") if dual else ("A",)
     both = "AB" if dual else "A"
