@@ -27,9 +27,9 @@ def box(n_testers: int, per_tester: int, type_name: str) -> tuple[float, int]:
                         [f"glowsim://?tube={type_name}&pace=1&serial=BENCH{n}&seed={n}"
                          for n in range(1, n_testers + 1)],
                         type_name, pattern=ses.LabelPattern("P-###"),
-                        count=n_testers * per_tester)
+                        count=n_testers * per_tester, unattended=True)
         t0 = time.monotonic()
-        results = ses.run(s, lambda prompt: "s" if "Retest " in prompt else "", lambda _: None)
+        results = ses.run(s, input, lambda _: None)  # unattended: never asks
         wall = time.monotonic() - t0
     return wall, sum(r.outcome == "captured" for r in results)
 

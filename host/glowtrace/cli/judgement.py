@@ -151,38 +151,6 @@ def cmd_match(args) -> int:
     return 0
 
 
-def label_items(store, cfg, tubes_wanted, owner, type_name) -> list[dict]:
-    """What each tube's label says: label, type, day of its last test (local),
-    status, grade and up to three key figures with units."""
-    from ..judgement import scoring
-    from ..logbook import records
-    from ..outputs import stock
-    from .logbook import local_day
-    last = {t["label"]: t["last_capture"] for t in records.list_tubes(store, owner, type_name)}
-    rows = stock.stock_rows(scoring.assess_fleet(store, cfg, type_name, owner))
-    if tubes_wanted:
-        missing = [t for t in tubes_wanted if t not in {r["tube"] for r in rows}]
-        if missing:
-            from ..errors import GlowtraceError
-            raise GlowtraceError(f"no tube {missing[0]!r} in the logbook"
-                                 + (" among those chosen" if owner or type_name else ""))
-        rows = [r for r in rows if r["tube"] in tubes_wanted]
-    items = []
-    for r in rows:
-        figs = []
-        if r["rated_hot_current_a"]:
-            figs.append("I " + " ".join(f"{s} {v:.4g}" for s, v in
-                                         r["rated_hot_current_a"].items()) + " A")
-        if r["flash_index"]:
-            figs.append("flash " + " ".join(f"{s} {v:.2g}" for s, v in r["flash_index"].items()))
-        if r["current_deviation"]:
-            figs.append("vs rated " + " ".join(f"{s} {100 * v:+.1f}" for s, v in
-                                                r["current_deviation"].items()) + " %")
-        items.append({"label": r["tube"], "type": r["type"], "date": local_day(last.get(r["tube"])),
-                      "status": r["status"], "grade": r["grade"], "figures": figs})
-    return items
-
-
 def cmd_labels(args) -> int:
     from ..errors import GlowtraceError
     from ..outputs import labels
@@ -196,7 +164,7 @@ def cmd_labels(args) -> int:
     else:
         grid = labels.GRIDS[args.grid or ("2x5" if args.paper == "letter" else "3x8")]
     with Store(db_path(args), create=False) as store:
-        items = label_items(store, cfg, args.tube, args.owner or args.lot, args.type)
+        items = labels.label_items(store, cfg, args.tube, args.owner or args.lot, args.type)
     if not items:
         raise GlowtraceError("no tubes to label: the logbook has none of those")
     try:

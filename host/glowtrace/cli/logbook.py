@@ -21,7 +21,9 @@ def cmd_owner(args) -> int:
         elif args.action == "list":
             res = records.list_owners(store)
         elif args.action == "show":
-            res = owner_summary(store, args.name)
+            from .. import config
+            from ..outputs.stock import owner_summary
+            res = owner_summary(store, args.name, config.load(None))
         elif args.action == "rename":
             records.rename_owner(store, args.name, args.new_name)
             res = {"renamed": args.name, "to": args.new_name}
@@ -42,32 +44,6 @@ def cmd_owner(args) -> int:
             _fields(r)
     ui.emit(args, res, render)
     return 0
-
-
-def owner_summary(store, name: str) -> dict:
-    """An owner's (or a lot's) tubes: status, grade and the day each was
-    last seen on the bench, in local time."""
-    from .. import config
-    from ..judgement import scoring
-    owner = records.require_owner(store, name)
-    last = {t["label"]: t["last_capture"] for t in records.list_tubes(store, owner["name"])}
-    tubes = [{"tube": a["tube"], "type": a["type"], "status": a["status"],
-              "grade": a["grade"], "last_seen": local_day(last.get(a["tube"])),
-              "reason": (a["reasons"] or [None])[0]}
-             for a in scoring.assess_fleet(store, config.load(None), owner=owner["name"])]
-    counts: dict = {}
-    for t in tubes:
-        counts[t["status"]] = counts.get(t["status"], 0) + 1
-    return {"owner": owner["name"], "contact": owner["contact"], "tubes": tubes,
-            "statuses": counts}
-
-
-def local_day(iso: str | None) -> str | None:
-    """A stored UTC time as the local calendar day (what a customer calls it)."""
-    if not iso:
-        return None
-    from datetime import datetime
-    return datetime.fromisoformat(iso.replace("Z", "+00:00")).astimezone().date().isoformat()
 
 
 def render_owner_summary(r: dict) -> None:

@@ -21,15 +21,17 @@ def cmd_session(args) -> int:
     if len(set(ports)) != len(ports):
         raise ses.PatternError("a tester is named twice in --port")
     s = ses.Session(db_path(args), ports, kind.name, args.section, args.range, args.lot,
-                    pattern, args.count, args.max_s, args.room_c)
+                    pattern, args.count, args.max_s, args.room_c, unattended=args.yes)
 
-    bar, progress_for = _progress_lines(ports, args.max_s)
+    from .tester import progress_lines
+    lines = {str(n): f"tester {n}" if len(ports) > 1 else "capturing"
+             for n in range(1, len(ports) + 1)}
+    bar, update_for = progress_lines(args.max_s, list(lines.values()), show_tube=True)
+
+    def progress_for(who: str):
+        return update_for(lines[who])
 
     def ask(prompt: str) -> str:
-        if args.yes:  # scripted: no prompt to insert (the simulated tester, a jig)
-            if "Label of" in prompt:
-                raise EOFError
-            return "s" if "Retest " in prompt else ""  # a refused tube is skipped
         # the progress lines stop while the user answers: a live display
         # redrawn under the cursor would scatter what they type
         bar.stop()
@@ -65,28 +67,6 @@ def cmd_session(args) -> int:
                     "capture: handle them with care.")
     ui.emit(args, rows, render)
     return 0
-
-
-def _progress_lines(ports: list[str], max_s: float):
-    """One progress line per tester (on a terminal)."""
-    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
-    bar = Progress(TextColumn("[bold]{task.description}"), BarColumn(),
-                   TextColumn("{task.fields[status]}"), TimeElapsedColumn(),
-                   console=ui.err, transient=True, disable=not ui.err.is_terminal)
-    tasks = {str(n): bar.add_task(f"tester {n}" if len(ports) > 1 else "capturing",
-                                  total=max_s, status="")
-             for n in range(1, len(ports) + 1)}
-
-    def progress_for(who: str):
-        task = tasks[who]
-
-        def update(raw):
-            b = raw.blocks[-1]
-            t_s = (b.t_start_us + b.interval_us * b.n_sets) / 1e6
-            bar.update(task, completed=min(t_s, max_s),
-                       status=f"{raw.tube}: {t_s:6.2f} s heater time, {raw.n_sets} sets")
-        return update
-    return bar, progress_for
 
 
 def register(sub, common) -> None:

@@ -64,19 +64,27 @@ def cmd_sim(args) -> int:
         sim.stop()
 
 
-def _progress_bar(max_s: float):
+def progress_lines(max_s: float, names=("capturing",), show_tube: bool = False):
+    """A progress line per name (one per tester in a bench session), on a
+    terminal: (the display, update_for(name) -> the capture's progress
+    callback for that line)."""
     bar = Progress(TextColumn("[bold]{task.description}"), BarColumn(),
                    TextColumn("{task.fields[status]}"), TimeElapsedColumn(),
                    console=ui.err, transient=True, disable=not ui.err.is_terminal)
-    task = bar.add_task("capturing", total=max_s, status="")
+    tasks = {n: bar.add_task(n, total=max_s, status="") for n in names}
 
-    def update(raw):
-        b = raw.blocks[-1]
-        t_s = (b.t_start_us + b.interval_us * b.n_sets) / 1e6
-        phase = raw.phases[b.phase - 1][0] if 0 < b.phase <= len(raw.phases) else "baseline"
-        bar.update(task, completed=min(t_s, max_s),
-                   status=f"{t_s:6.2f} s heater time, {phase} phase, {raw.n_sets} sets")
-    return bar, update
+    def update_for(name: str):
+        task = tasks[name]
+
+        def update(raw):
+            b = raw.blocks[-1]
+            t_s = (b.t_start_us + b.interval_us * b.n_sets) / 1e6
+            phase = raw.phases[b.phase - 1][0] if 0 < b.phase <= len(raw.phases) else "baseline"
+            bar.update(task, completed=min(t_s, max_s),
+                       status=(f"{raw.tube}: " if show_tube else "")
+                       + f"{t_s:6.2f} s heater time, {phase} phase, {raw.n_sets} sets")
+        return update
+    return bar, update_for
 
 
 def cmd_capture(args) -> int:
@@ -84,7 +92,8 @@ def cmd_capture(args) -> int:
     from ..tester.convert import summary
     params = {"range": args.range, "max_s": args.max_s,
               "settle_band": args.settle_band, "settle_hold_s": args.settle_hold_s}
-    bar, update = _progress_bar(args.max_s)
+    bar, update_for = progress_lines(args.max_s)
+    update = update_for("capturing")
     told = []
 
     def on_busy(waited_s):

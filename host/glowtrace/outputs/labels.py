@@ -52,6 +52,37 @@ def parse_grid_mm(text: str) -> Grid:
     return Grid(int(parts[0]), int(parts[1]), *parts[2:])
 
 
+def label_items(store, cfg: dict, wanted: list[str], owner: str | None,
+                type_name: str | None) -> list[dict]:
+    """What each tube's label says: label, type, day of its last test (local),
+    status, grade and up to three key figures with units."""
+    from ..errors import GlowtraceError
+    from ..judgement.scoring import assess_fleet
+    from . import stock
+    seen = stock.last_seen(store, owner, type_name)
+    rows = stock.stock_rows(assess_fleet(store, cfg, type_name, owner))
+    if wanted:
+        missing = [t for t in wanted if t not in {r["tube"] for r in rows}]
+        if missing:
+            raise GlowtraceError(f"no tube {missing[0]!r} in the logbook"
+                                 + (" among those chosen" if owner or type_name else ""))
+        rows = [r for r in rows if r["tube"] in wanted]
+    items = []
+    for r in rows:
+        figs = []
+        if r["rated_hot_current_a"]:
+            figs.append("I " + " ".join(f"{s} {v:.4g}" for s, v in
+                                         r["rated_hot_current_a"].items()) + " A")
+        if r["flash_index"]:
+            figs.append("flash " + " ".join(f"{s} {v:.2g}" for s, v in r["flash_index"].items()))
+        if r["current_deviation"]:
+            figs.append("vs rated " + " ".join(f"{s} {100 * v:+.1f}" for s, v in
+                                                r["current_deviation"].items()) + " %")
+        items.append({"label": r["tube"], "type": r["type"], "date": seen.get(r["tube"]),
+                      "status": r["status"], "grade": r["grade"], "figures": figs})
+    return items
+
+
 def qr_matrix(text: str) -> np.ndarray:
     """The QR code of a label as a boolean array (True dark), a full QR code
     (not Micro QR, which few phone readers take), medium error correction."""

@@ -21,6 +21,7 @@ from ..errors import GlowtraceError
 from ..analysis.curve import stored_curves
 from ..judgement.scoring import LABELS, _parse_at, history
 from ..judgement.verdict import plain
+from .stock import local_day
 from ..logbook.store import Store
 
 CAUTION = ("The tube was tested on its own, on a low-voltage bench supply. Equipment that "
@@ -90,10 +91,6 @@ def shop_settings(path=None) -> dict:
 
 def local_time(at: str) -> str:
     return _parse_at(at).astimezone().strftime("%Y-%m-%d %H:%M")
-
-
-def local_day(at: str) -> str:
-    return _parse_at(at).astimezone().date().isoformat()
 
 
 def _trend_figure(result: dict, caps: list[dict]):
@@ -186,9 +183,9 @@ def _figures_table(caps: list[dict]) -> str:
             "<th class='text'>counted in the trend</th></tr>" + rows + "</table>")
 
 
-def _tube_block(store: Store, result: dict, caps_shown: list[dict], none_grade: str) -> str:
+def _tube_block(store: Store, result: dict, caps_shown: list[dict], v: dict) -> str:
+    """One tube's part of the page; v: its verdict in plain words."""
     e = html.escape
-    v = plain(result, none_grade)
     caps = result["captures"]
     parts = [f"<section class='tube'><h2>{e(result['tube'])} &middot; "
              f"{e(result['type'] or 'type unknown')}</h2>",
@@ -276,16 +273,17 @@ def write_report(store: Store, target: str, cfg: dict, path, shop: dict | None =
                 + (f"Visit: {e(visit_day)}. " if visit_day else "")
                 + f"Written {datetime.now(timezone.utc).astimezone().strftime('%Y-%m-%d %H:%M')}"
                 " (local time) with glowtrace.</p></header>")
+    verdicts = {r["tube"]: plain(r, none_grade) for r in results}
     summary = ""
     if len(results) > 1:
         summary = ("<table><tr><th class='text'>tube</th><th class='text'>type</th>"
                    "<th class='text'>verdict</th><th class='text'>what to do</th></tr>"
                    + "".join(f"<tr><td class='text'>{e(r['tube'])}</td><td class='text'>"
                              f"{e(r['type'] or '')}</td><td class='text'>"
-                             f"{e(plain(r, none_grade)['verdict'])}</td><td class='text'>"
-                             f"{e(plain(r, none_grade)['advice'])}</td></tr>" for r in results)
+                             f"{e(verdicts[r['tube']]['verdict'])}</td><td class='text'>"
+                             f"{e(verdicts[r['tube']]['advice'])}</td></tr>" for r in results)
                    + "</table>")
-    body = [_tube_block(store, r, shown[r["tube"]], none_grade) for r in results]
+    body = [_tube_block(store, r, shown[r["tube"]], verdicts[r["tube"]]) for r in results]
     page = ["<!doctype html><html lang='en'><head><meta charset='utf-8'>",
             "<meta name='viewport' content='width=device-width, initial-scale=1'>",
             f"<title>{e(title)}</title><style>{CSS.replace('PAPER', PAPER_CSS[paper])}</style>"
@@ -297,4 +295,4 @@ def write_report(store: Store, target: str, cfg: dict, path, shop: dict | None =
         fh.write("\n".join(page))
     return {"kind": kind, "name": name, "visit": visit_day, "tubes": [
         {"tube": r["tube"], "status": r["status"], "grade": r["grade"],
-         **plain(r, none_grade)} for r in results]}
+         **verdicts[r["tube"]]} for r in results]}

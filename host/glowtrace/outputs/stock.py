@@ -1,5 +1,7 @@
 """The stock list dealers hand on: one row per tube from the fleet's
-assessments (JSON), flattened to one line per section for a spreadsheet (CSV)."""
+assessments (JSON), flattened to one line per section for a spreadsheet (CSV);
+and an owner's (or a lot's) summary: each tube's status and the day it was
+last seen."""
 
 import csv
 from pathlib import Path
@@ -50,6 +52,37 @@ def select(rows: list[dict], grade: str | None = None, status: str | None = None
             "current": lambda r: (next(iter(r["rated_hot_current_a"].values()), float("inf")),
                                   r["tube"])}
     return sorted(out, key=keys[sort])
+
+
+def local_day(at: str) -> str:
+    """A stored UTC time as the local calendar day (what a customer calls it)."""
+    from ..judgement.scoring import _parse_at
+    return _parse_at(at).astimezone().date().isoformat()
+
+
+def last_seen(store, owner: str | None = None, type_name: str | None = None) -> dict:
+    """label -> the local day of the tube's latest capture (None: never)."""
+    from ..logbook.records import list_tubes
+    return {t["label"]: local_day(t["last_capture"]) if t["last_capture"] else None
+            for t in list_tubes(store, owner, type_name)}
+
+
+def owner_summary(store, name: str, cfg: dict) -> dict:
+    """An owner's (or a lot's) tubes: status, grade, the first reason and the
+    day each was last seen on the bench."""
+    from ..judgement.scoring import assess_fleet
+    from ..logbook.records import require_owner
+    owner = require_owner(store, name)
+    seen = last_seen(store, owner["name"])
+    tubes = [{"tube": a["tube"], "type": a["type"], "status": a["status"],
+              "grade": a["grade"], "last_seen": seen.get(a["tube"]),
+              "reason": (a["reasons"] or [None])[0]}
+             for a in assess_fleet(store, cfg, owner=owner["name"])]
+    counts: dict = {}
+    for t in tubes:
+        counts[t["status"]] = counts.get(t["status"], 0) + 1
+    return {"owner": owner["name"], "contact": owner["contact"], "tubes": tubes,
+            "statuses": counts}
 
 
 def write_stock_csv(rows: list[dict], path: str | Path) -> None:

@@ -167,6 +167,7 @@ class Session:
     count: int | None = None       # stop after this many tubes
     max_s: float = 60.0
     room_c: float = 22.0
+    unattended: bool = False       # no prompts: each question takes its unattended answer
 
 
 class Writer:
@@ -299,7 +300,13 @@ class _Bench:
         self.stop = threading.Event()
         self.asking: set = set()
 
-    def ask(self, who: str, prompt: str) -> str:
+    def ask(self, who: str, prompt: str, unattended: str) -> str:
+        """The user's answer; in an unattended session (a jig, the simulated
+        tester) the question's own answer for that case, no prompt."""
+        if self.s.unattended:
+            if self.stop.is_set():
+                raise EOFError
+            return unattended
         with self.ask_lock:
             if self.stop.is_set():
                 raise EOFError
@@ -321,8 +328,8 @@ class _Bench:
             self.started += 1
             if self.s.pattern:
                 return self.s.pattern.next()
-        label = self.ask(who, prefix + "Label of the next tube (scan or type; empty to stop): "
-                         ).strip()
+        label = self.ask(who, prefix + "Label of the next tube (scan or type; empty to stop): ",
+                         "").strip()
         return label or None
 
 
@@ -346,7 +353,7 @@ def _tester_loop(bench: _Bench, port: str, who: str, prefix: str, progress) -> N
             kind, section = bench.kind, bench.section
             answer = bench.ask(who, f"{prefix}Insert {label} ({kind.name}, section {section}) "
                                "and press Enter; s skip, t TYPE change type, "
-                               + (f"r retest {last}, " if last else "") + "q stop: ").strip()
+                               + (f"r retest {last}, " if last else "") + "q stop: ", "").strip()
         except (EOFError, KeyboardInterrupt):
             bench.stop.set()
             return
@@ -363,7 +370,7 @@ def _tester_loop(bench: _Bench, port: str, who: str, prefix: str, progress) -> N
                 continue
             # the last tube again; this label's prompt comes back after it
             resume, label = label, last
-            bench.ask(who, f"{prefix}Put {label} back in and press Enter: ")
+            bench.ask(who, f"{prefix}Put {label} back in and press Enter: ", "")
         if answer.lower().startswith("t "):
             try:
                 new = catalogue.load().get(answer[2:].strip())
@@ -398,7 +405,7 @@ def _tester_loop(bench: _Bench, port: str, who: str, prefix: str, progress) -> N
             bench.say(f"{prefix}{label}: refused before switch-on: {e}")
             try:
                 again = bench.ask(who, f"{prefix}Retest {label}? Enter when ready, s to skip "
-                                  "it, q to stop: ").strip().lower()
+                                  "it, q to stop: ", "s").strip().lower()  # unattended: skip
             except (EOFError, KeyboardInterrupt):
                 again = "q"
             if again in ("s", "q"):
